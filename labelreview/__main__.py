@@ -1,0 +1,5 @@
+"""``python -m labelreview`` runs the command line."""
+
+from labelreview.cli import main
+
+main()

@@ -1,0 +1,85 @@
+"""Plain, frozen value types shared by every layer of labelreview.
+
+Annotations themselves travel as a pandas DataFrame with the string columns ``item``,
+``annotator`` and ``label`` (one row per item x annotator x label); the types here describe
+everything around them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+from typing import Any, Literal
+
+Severity = Literal["low", "medium", "high"]
+SEVERITIES: tuple[Severity, ...] = ("low", "medium", "high")
+SEVERITY_RANK: dict[str, int] = {"low": 1, "medium": 2, "high": 3}
+
+Subjects = Literal["people", "mixed", "none"]
+SUBJECTS: tuple[Subjects, ...] = ("people", "mixed", "none")
+
+MatchKind = Literal["exact", "variant", "fuzzy"]
+
+ANNOTATION_COLUMNS: tuple[str, str, str] = ("item", "annotator", "label")
+
+
+@dataclass(frozen=True)
+class TaxonomyLabel:
+    """One label of the dataset's vocabulary."""
+
+    name: str
+    """The label as annotators see it; for a hierarchy, the full path (``people/roles/x``)."""
+    id: str | None = None
+    """The taxonomy's own id for it, where the file has one."""
+    parent: str | None = None
+    """The parent's path, or None at the top."""
+    description: str | None = None
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One reason to look at one label: a lexicon term matched inside it."""
+
+    label: str
+    """The label exactly as it appears in the data."""
+    category: str
+    """Lexicon category id, e.g. ``character_judgement``."""
+    category_title: str
+    severity: Severity
+    term: str
+    """The lexicon term (head word) that matched."""
+    matched: str
+    """The text in the label that matched, after normalisation."""
+    match: MatchKind
+    score: float
+    """100 for exact and variant matches; the rapidfuzz similarity for fuzzy ones."""
+    span: tuple[int, int]
+    """Token positions [start, end) within the label's normalised tokens."""
+    tokens: tuple[str, ...]
+    """The label's normalised tokens, so ``span`` can be read."""
+    suggestions: tuple[str, ...]
+    reason: str
+    """One plain sentence saying why the label was flagged."""
+    source: str
+    """Lexicon file and line of the term: ``lexicons/base/character.yaml:12``."""
+
+    def to_dict(self) -> dict[str, Any]:
+        data = asdict(self)
+        data["span"] = list(self.span)
+        data["tokens"] = list(self.tokens)
+        data["suggestions"] = list(self.suggestions)
+        return data
+
+
+@dataclass(frozen=True)
+class LoadReport:
+    """What a loader did, so the CLI can say it (formats detected, rows dropped...)."""
+
+    path: str
+    format: str
+    """The format actually used: csv, tsv, jsonl, parquet, wide-csv, coco, ..."""
+    rows_read: int = 0
+    duplicates_dropped: int = 0
+    empty_labels_dropped: int = 0
+    column_map: dict[str, str] = field(default_factory=dict)
+    """Our column name -> the file's column name."""
+    notes: tuple[str, ...] = ()

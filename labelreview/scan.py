@@ -1,0 +1,507 @@
+"""The scanner: a :class:`Lexicon` and a list of labels -> :class:`Finding` objects.
+
+Pure: no printing, no files. The work is arranged for speed on large vocabularies: every
+distinct segment of a label is matched once (labels in a hierarchy share most of theirs), every
+distinct unknown token is fuzzy-matched once, and only tokens that are not ordinary English
+words reach the fuzzy matcher at all, which is also what keeps "bakery" from reading as a
+misspelt "baker".
+
+Matching, in order: exact term tokens on token boundaries; listed variants and regular
+inflections; then, for unknown tokens only, digit-for-letter and doubled-letter folding and
+rapidfuzz similarity. Position rules (documented in ``lexicons/README.md``) decide whether a
+match speaks about a person: nouns must head their segment ("nurse", not "nurse shark"),
+modifiers must stand alone or beside a person noun ("lazy worker", not "lazy river").
+"""
+
+from __future__ import annotations
+
+import gzip
+import re
+from collections.abc import Iterable
+from dataclasses import dataclass
+from functools import lru_cache
+from importlib import resources
+from pathlib import Path
+
+from rapidfuzz import fuzz, process
+
+from labelreview.errors import UsageError
+from labelreview.lexicon import Lexicon, Problem, Term, collect_problems
+from labelreview.model import SUBJECTS, Finding, Subjects
+from labelreview.text import (
+    Token,
+    deobfuscate,
+    fold,
+    plural_forms,
+    split_segments,
+    squeeze,
+    term_tokens,
+    tokenize,
+)
+
+DEFAULT_FUZZY_THRESHOLD = 88.0
+DEFAULT_FUZZY_MIN_LENGTH = 5
+
+#: Categories whose terms are flagged wherever they stand in a label.
+ANYWHERE_CATEGORIES = frozenset({"slur_or_derogatory"})
+
+#: Generic words for people. They are never flagged themselves; they tell the scanner that a
+#: modifier next to them describes a person ("lazy man") rather than a thing ("lazy river").
+PERSON_NOUNS = frozenset(
+    """
+man men woman women person people persons guy guys gal gals lady ladies gentleman gentlemen
+boy boys girl girls child children kid kids baby babies toddler toddlers infant infants teen
+teens teenager teenagers youth youths adult adults human humans individual individuals
+someone somebody anyone everyone family families couple couples crowd crowds group groups
+folk folks mother mothers father fathers mom moms mum mums dad dads parent parents son sons
+daughter daughters brother brothers sister sisters husband husbands wife wives grandmother
+grandmothers grandfather grandfathers grandparent grandparents friend friends neighbour
+neighbours neighbor neighbors resident residents citizen citizens passenger passengers
+pedestrian pedestrians customer customers visitor visitors tourist tourists spectator
+spectators participant participants volunteer volunteers student students pupil pupils
+player players face faces portrait portraits selfie headshot figure figures male males
+female females stranger strangers local locals elder elders senior seniors member members
+""".split()
+)
+
+#: Words that carry no subject of their own in a label ("suspicious-looking", "a lazy one").
+FILLERS = frozenset(
+    """
+looking appearing seeming looks look type kind sort of a an the very really quite one ones
+photo picture image shot style like
+""".split()
+)
+
+#: Words that may follow a person noun without making it a modifier of a thing:
+#: "fireman on duty", "beggar and dog".
+_FUNCTION_WORDS = frozenset(
+    """
+on in at with without and or for by near from to into onto under over behind beside next
+is are was were being who that which while during after before outside inside
+""".split()
+)
+
+#: Markers that give a person's gender where it is not needed: "male nurse", "lady doctor".
+_SUBSTITUTES = re.compile(r"[0-9@$]")
+
+GENDER_MARKERS = frozenset({"male", "female", "lady", "woman", "man", "girl", "boy"})
+
+
+@lru_cache(maxsize=1)
+def english_words() -> frozenset[str]:
+    """Ordinary English words (derived from WordNet 3.0; see scripts/derive_vocabulary.py)."""
+    data = resources.files("labelreview").joinpath("data/english_words.txt.gz").read_bytes()
+    text = gzip.decompress(data).decode("utf-8")
+    return frozenset(w for w in text.splitlines() if w and not w.startswith("#"))
+
+
+@dataclass(frozen=True)
+class _Form:
+    term: Term
+    kind: str  # exact | variant
+
+
+@dataclass(frozen=True)
+class _Hit:
+    start: int
+    end: int
+    term: Term
+    kind: str
+    score: float
+    surface: str
+
+
+class Scanner:
+    """Match labels against a lexicon.
+
+    Args:
+        lexicon: The effective lexicon (see :func:`labelreview.lexicon.load_lexicon`).
+        subjects: Do the items depict or describe people: ``people``, ``mixed`` or ``none``.
+            With ``none`` only terms whose scope is ``always`` can fire.
+        fuzzy_threshold: rapidfuzz ratio (0-100) a misspelt token needs to match a term.
+        fuzzy_min_length: Tokens shorter than this are never fuzzy-matched.
+
+    Example:
+        >>> from labelreview.lexicon import load_lexicon
+        >>> scanner = Scanner(load_lexicon(), subjects="people")
+        >>> sorted({f.category for f in scanner.scan(["people/lazy_worker"])})
+        ['character_judgement', 'occupation_from_appearance']
+    """
+
+    def __init__(
+        self,
+        lexicon: Lexicon,
+        subjects: Subjects | str = "mixed",
+        *,
+        fuzzy_threshold: float = DEFAULT_FUZZY_THRESHOLD,
+        fuzzy_min_length: int = DEFAULT_FUZZY_MIN_LENGTH,
+    ) -> None:
+        if subjects not in SUBJECTS:
+            raise UsageError(
+                f"The 'subjects' parameter must be one of {', '.join(SUBJECTS)}; got {subjects!r}."
+            )
+        if not 0 < fuzzy_threshold <= 100:
+            raise UsageError(
+                f"The 'fuzzy_threshold' parameter must be in (0, 100]; got {fuzzy_threshold!r}."
+            )
+        if fuzzy_min_length < 1:
+            raise UsageError(
+                f"The 'fuzzy_min_length' parameter must be at least 1; got {fuzzy_min_length!r}."
+            )
+        self.lexicon = lexicon
+        self.subjects = subjects
+        self.fuzzy_threshold = float(fuzzy_threshold)
+        self.fuzzy_min_length = int(fuzzy_min_length)
+        self._index: dict[tuple[str, ...], _Form] = {}
+        self._all_forms: set[str] = set()
+        self._exceptions: dict[int, tuple[tuple[str, ...], ...]] = {}
+        self._person_tokens: set[str] = set(PERSON_NOUNS)
+        people_scope = subjects in ("people", "mixed")
+        for term in lexicon.terms:
+            forms = self._forms(term)
+            for key, _ in forms:
+                if len(key) == 1:
+                    self._all_forms.add(key[0])
+            if term.scope == "people" and not people_scope:
+                continue
+            for key, kind in forms:
+                current = self._index.get(key)
+                if current is None or (current.kind != "exact" and kind == "exact"):
+                    self._index[key] = _Form(term, kind)
+            self._exceptions[id(term)] = tuple(
+                tuple(tok) for tok in (term_tokens(e) for e in term.exceptions) if tok
+            )
+            if term.form == "noun" and term.category not in ANYWHERE_CATEGORIES:
+                # Only one-word person nouns tell that a neighbour describes a person: the last
+                # word of "water dog" or "hard hat" is not a person.
+                for key, _ in forms:
+                    if len(key) == 1:
+                        self._person_tokens.add(key[0])
+        lengths: dict[str, set[int]] = {}
+        for key in self._index:
+            lengths.setdefault(key[0], set()).add(len(key))
+        # first word -> the lengths of forms starting with it, longest first
+        self._starts = {w: tuple(sorted(ls, reverse=True)) for w, ls in lengths.items()}
+        single = {k[0]: f for k, f in self._index.items() if len(k) == 1}
+        self._single = single
+        self._squeezed: dict[str, str] = {}
+        for form in sorted(single):
+            self._squeezed.setdefault(squeeze(form), form)
+        self._by_length: dict[int, list[str]] = {}
+        for form in sorted(single):
+            self._by_length.setdefault(len(form), []).append(form)
+        self._segment_cache: dict[str, tuple[tuple[Token, ...], tuple[_Hit, ...]]] = {}
+        self._unknown_cache: dict[str, tuple[str, str, float] | None] = {}
+        self._choice_cache: dict[int, list[str]] = {}
+        self._vocabulary = english_words()
+
+    # -- building ---------------------------------------------------------------------------
+
+    @staticmethod
+    def _forms(term: Term) -> list[tuple[tuple[str, ...], str]]:
+        out: list[tuple[tuple[str, ...], str]] = []
+        base = term_tokens(term.term)
+        out.append((base, "exact"))
+        spellings = [base, *(term_tokens(v) for v in term.variants)]
+        for i, toks in enumerate(spellings):
+            if not toks:
+                continue
+            if i:
+                out.append((toks, "variant"))
+            for plural in plural_forms(toks[-1]):
+                out.append(((*toks[:-1], plural), "variant"))
+        return out
+
+    # -- matching ---------------------------------------------------------------------------
+
+    def _resolve_unknown(self, token: str) -> tuple[str, str, float] | None:
+        """Fuzzy or obfuscated match of one token: (form, kind, score) or None."""
+        if token in self._unknown_cache:
+            return self._unknown_cache[token]
+        result: tuple[str, str, float] | None = None
+        if _SUBSTITUTES.search(token) is None and self._is_word(token):
+            self._unknown_cache[token] = None
+            return None
+        plain = deobfuscate(token)
+        candidates = [plain, squeeze(plain)]
+        for cand in candidates:
+            if cand in self._single:
+                result = (cand, "fuzzy", float(fuzz.ratio(token, cand)))
+                break
+            form = self._squeezed.get(squeeze(cand))
+            if form is not None and len(cand) >= 3:
+                result = (form, "fuzzy", float(fuzz.ratio(token, form)))
+                break
+        if result is None and len(plain) >= self.fuzzy_min_length:
+            choices = self._choices(len(plain))
+            best = process.extractOne(
+                plain, choices, scorer=fuzz.ratio, score_cutoff=self.fuzzy_threshold
+            )
+            if best is not None:
+                result = (best[0], "fuzzy", float(best[1]))
+        self._unknown_cache[token] = result
+        return result
+
+    def _choices(self, length: int) -> list[str]:
+        """Single-word term forms within two letters of ``length`` (ratio needs similar size)."""
+        cached = self._choice_cache.get(length)
+        if cached is None:
+            cached = [
+                f
+                for n in range(length - 2, length + 3)
+                for f in self._by_length.get(n, ())
+                if len(f) >= self.fuzzy_min_length
+            ]
+            self._choice_cache[length] = cached
+        return cached
+
+    def _is_word(self, token: str) -> bool:
+        vocab = self._vocabulary
+        if token in vocab or token in self._all_forms:
+            return True
+        for suffix in ("s", "es", "ed", "d", "ing", "er", "ers", "est", "ly", "ness"):
+            if token.endswith(suffix) and len(token) - len(suffix) >= 3:
+                stem = token[: -len(suffix)]
+                if stem in vocab or stem + "e" in vocab:
+                    return True
+                if stem[-1:] == stem[-2:-1] and stem[:-1] in vocab:  # "robbed" -> "rob"
+                    return True
+                if stem.endswith("i") and stem[:-1] + "y" in vocab:  # "tidied" -> "tidy"
+                    return True
+        return False
+
+    def _match_segment(self, segment: str) -> tuple[tuple[Token, ...], tuple[_Hit, ...]]:
+        cached = self._segment_cache.get(segment)
+        if cached is not None:
+            return cached
+        tokens = tokenize(segment)
+        texts = [t.text for t in tokens]
+        n = len(texts)
+        hits: list[_Hit] = []
+        i = 0
+        starts = self._starts
+        while i < n:
+            found = False
+            for length in starts.get(texts[i], ()):
+                if length > n - i:
+                    continue
+                form = self._index.get(tuple(texts[i : i + length]))
+                if form is not None:
+                    hits.append(
+                        _Hit(
+                            i,
+                            i + length,
+                            form.term,
+                            form.kind,
+                            100.0,
+                            " ".join(texts[i : i + length]),
+                        )
+                    )
+                    i += length
+                    found = True
+                    break
+            if found:
+                continue
+            word = texts[i]
+            if word not in PERSON_NOUNS and word not in FILLERS:
+                resolved = self._resolve_unknown(word)
+                if resolved is not None:
+                    form_text, kind, score = resolved
+                    hits.append(_Hit(i, i + 1, self._single[form_text].term, kind, score, word))
+            i += 1
+        kept = tuple(h for h in hits if self._speaks_of_person(h, tokens, hits))
+        result = (tokens, kept)
+        self._segment_cache[segment] = result
+        return result
+
+    def _speaks_of_person(self, hit: _Hit, tokens: tuple[Token, ...], hits: list[_Hit]) -> bool:
+        texts = [t.text for t in tokens]
+        for phrase in self._exceptions.get(id(hit.term), ()):
+            size = len(phrase)
+            for start in range(0, len(texts) - size + 1):
+                if (
+                    tuple(texts[start : start + size]) == phrase
+                    and start < hit.end
+                    and (start + size > hit.start)
+                ):
+                    return False
+        if hit.term.category in ANYWHERE_CATEGORIES:
+            return True
+        covered = {k for h in hits for k in range(h.start, h.end)}
+        if hit.term.form == "noun":
+            last = tokens[hit.end - 1]
+            rest = texts[hit.end :]
+            if not rest:
+                return True
+            if last.possessive:
+                return False
+            nxt = rest[0]
+            return (
+                nxt in self._person_tokens
+                or nxt in _FUNCTION_WORDS
+                or nxt in FILLERS
+                or (len(nxt) > 4 and nxt.endswith(("ing", "ed")))
+            )
+        # modifier: alone (with fillers), or in a segment whose head is a person
+        others = [k for k in range(len(texts)) if not hit.start <= k < hit.end]
+        if all(k in covered or texts[k] in FILLERS for k in others):
+            return True
+        for k in others:
+            tok = tokens[k]
+            if texts[k] in self._person_tokens and (not tok.possessive or k == len(texts) - 1):
+                return True
+        return False
+
+    # -- public ----------------------------------------------------------------------------
+
+    def scan_label(self, label: str) -> list[Finding]:
+        """All findings for one label (empty when nothing matched)."""
+        if not label or (self.lexicon.allow_labels and fold(label) in self.lexicon.allow_labels):
+            return []
+        all_tokens: list[str] = []
+        findings: list[Finding] = []
+        seen: set[tuple[str, str, int]] = set()
+        pending: list[tuple[int, _Hit]] = []
+        gender_pending: list[tuple[int, int, str]] = []
+        for segment in split_segments(label):
+            tokens, hits = self._match_segment(segment)
+            offset = len(all_tokens)
+            all_tokens.extend(t.text for t in tokens)
+            for hit in hits:
+                pending.append((offset, hit))
+                if hit.term.category == "occupation_from_appearance" and hit.start > 0:
+                    marker = tokens[hit.start - 1].text
+                    if marker in GENDER_MARKERS:
+                        gender_pending.append((offset + hit.start - 1, offset + hit.start, marker))
+        token_tuple = tuple(all_tokens)
+        for offset, hit in pending:
+            key = (hit.term.category, hit.term.term, offset + hit.start)
+            if key in seen:
+                continue
+            seen.add(key)
+            findings.append(self._finding(label, hit, offset, token_tuple))
+        gendered = self.lexicon.categories.get("gendered_term")
+        if gendered is not None:
+            for start, end, marker in gender_pending:
+                findings.append(
+                    Finding(
+                        label=label,
+                        category=gendered.id,
+                        category_title=gendered.title,
+                        severity="low",  # type: ignore[arg-type]
+                        term=f"{marker} + occupation",
+                        matched=marker,
+                        match="exact",
+                        score=100.0,
+                        span=(start, end),
+                        tokens=token_tuple,
+                        suggestions=(),
+                        reason=(
+                            f"'{marker}' marks the gender of an occupation where the occupation "
+                            f"alone says the same; gender-marking a job implies it is unusual for "
+                            f"that gender."
+                        ),
+                        source="labelreview/scan.py (gender-marker rule)",
+                    )
+                )
+        return findings
+
+    def _finding(self, label: str, hit: _Hit, offset: int, tokens: tuple[str, ...]) -> Finding:
+        term = hit.term
+        category = self.lexicon.categories[term.category]
+        title = category.title
+        if hit.kind == "exact":
+            how = f"contains '{term.term}'"
+        elif hit.kind == "variant":
+            how = f"contains '{hit.surface}', a form of '{term.term}'"
+        else:
+            how = (
+                f"contains '{hit.surface}', which looks like an altered spelling of "
+                f"'{term.term}' (similarity {hit.score:.0f} of 100)"
+            )
+        why = _first_sentence(category.rationale) or f"it is listed under {title.lower()}"
+        reason = f"The label {how} ({title.lower()}): {why[0].lower() + why[1:]}"
+        if term.suggestions:
+            reason = reason.rstrip(".") + f"; consider '{term.suggestions[0]}'."
+        return Finding(
+            label=label,
+            category=term.category,
+            category_title=title,
+            severity=term.severity,  # type: ignore[arg-type]
+            term=term.term,
+            matched=hit.surface,
+            match=hit.kind,  # type: ignore[arg-type]
+            score=round(hit.score, 1),
+            span=(offset + hit.start, offset + hit.end),
+            tokens=tokens,
+            suggestions=term.suggestions,
+            reason=reason,
+            source=term.source,
+        )
+
+    def scan(self, labels: Iterable[str]) -> list[Finding]:
+        """Findings for every distinct label, in first-seen order of the labels."""
+        out: list[Finding] = []
+        seen: set[str] = set()
+        for label in labels:
+            if label in seen:
+                continue
+            seen.add(label)
+            out.extend(self.scan_label(label))
+        return out
+
+
+def _first_sentence(text: str) -> str:
+    text = " ".join(text.split())
+    for end in (". ", "! ", "? "):
+        if end in text:
+            return text.split(end, 1)[0] + "."
+    return text if not text or text.endswith(".") else text + "."
+
+
+def scan_labels(
+    labels: Iterable[str], lexicon: Lexicon, subjects: Subjects | str = "mixed", **options: float
+) -> list[Finding]:
+    """One-call form of :class:`Scanner`: ``Scanner(lexicon, subjects, **options).scan(labels)``."""
+    return Scanner(lexicon, subjects, **options).scan(labels)  # type: ignore[arg-type]
+
+
+def validate_lexicon(
+    layers: list[Path | str] | tuple[Path | str, ...] = (), base: Path | str | None = "builtin"
+) -> tuple[Lexicon | None, list[Problem]]:
+    """Every problem in a lexicon set, including suggestions that are themselves flagged.
+
+    Args:
+        layers: Layer files applied after the base, in order.
+        base: ``"builtin"``, a folder replacing the shipped set, or None.
+
+    Returns:
+        The lexicon (None when it has errors) and the list of problems.
+    """
+    lexicon, problems = collect_problems(layers, base)
+    if lexicon is None:
+        return None, problems
+    scanner = Scanner(lexicon, "people")
+    for term in lexicon.terms:
+        for suggestion in term.suggestions:
+            hits = [f for f in scanner.scan_label(suggestion) if f.term != term.term]
+            # A neutral job title is a fair suggestion for a gendered one ("firefighter" for
+            # "fireman"); whether a job can be read off an image is judged when it is a label.
+            hits = [
+                f
+                for f in hits
+                if f.category != "occupation_from_appearance" and not f.term.endswith("occupation")
+            ]
+            if hits:
+                file, _, line = term.source.rpartition(":")
+                problems.append(
+                    Problem(
+                        file,
+                        int(line) if line.isdigit() else None,
+                        f"suggestion '{suggestion}' for '{term.term}' is itself flagged "
+                        f"({hits[0].category}, term '{hits[0].term}'); suggest a neutral name",
+                    )
+                )
+    if any(p.level == "error" for p in problems):
+        return None, problems
+    return lexicon, problems
