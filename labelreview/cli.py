@@ -10,6 +10,7 @@ from __future__ import annotations
 import functools
 import shutil
 import sys
+import textwrap
 import traceback
 import warnings
 from collections.abc import Callable
@@ -235,7 +236,7 @@ def _scan_table(result: Any) -> str:
         f"subjects: {result.subjects}; lexicon {result.lexicon_hash[:19]}"
     )
     if rows:
-        width = shutil.get_terminal_size((120, 24)).columns
+        width = min(shutil.get_terminal_size((100, 24)).columns, 120)
         label_w = min(max(len(r["label"]) for r in rows), 40)
         head = (
             f"{'SEVERITY':8}  {'LABEL':{label_w}}  {'CATEGORY':26}  {'TERM':18}  {'MATCH':10}  USES"
@@ -249,11 +250,18 @@ def _scan_table(result: Any) -> str:
                 f"{_shorten(r['category'], 26):26}  {_shorten(r['term'], 18):18}  "
                 f"{match:10}  {r['annotations']}"
             )
-            lines.append(f"{'':10}why: {_shorten(r['reason'], max(width - 16, 40))}")
+            lines.extend(
+                textwrap.wrap(
+                    r["reason"], width=max(width, 60), initial_indent=" " * 10 + "why: ",
+                    subsequent_indent=" " * 15,
+                )
+            )
             if r["suggestions"]:
                 lines.append(f"{'':10}try: {', '.join(r['suggestions'])}")
     lines.append("")
-    lines.extend(f"note: {c}" for c in CAUTIONS)
+    for caution in CAUTIONS:
+        lines.extend(textwrap.wrap(caution, width=100, initial_indent="note: ",
+                                   subsequent_indent="      "))
     return "\n".join(lines)
 
 

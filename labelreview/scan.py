@@ -24,6 +24,7 @@ from importlib import resources
 from pathlib import Path
 
 from rapidfuzz import fuzz, process
+from rapidfuzz.distance import OSA
 
 from labelreview.errors import UsageError
 from labelreview.lexicon import Lexicon, Problem, Term, collect_problems
@@ -61,8 +62,18 @@ pedestrian pedestrians customer customers visitor visitors tourist tourists spec
 spectators participant participants volunteer volunteers student students pupil pupils
 player players face faces portrait portraits selfie headshot figure figures male males
 female females stranger strangers local locals elder elders senior seniors member members
-""".split()
-)
+worker workers professional professionals character characters owner owners employee
+employees staff tenant tenants landlord landlords patient patients bride brides
+""".split())
+
+#: Words ending in -ing or -ed that are things, not what a person is doing: after a person noun
+#: they make it a modifier ("derelict building"), unlike "beggar sitting".
+_THING_ING = frozenset("""
+building buildings clothing painting paintings drawing drawings ring rings wedding ceiling
+housing bedding filling stuffing frosting icing pudding topping dressing covering lighting
+fitting fittings setting landing crossing opening evening morning string wing spring thing
+things railing siding roofing flooring plumbing wiring seating parking shed bed bred
+""".split())
 
 #: Words that carry no subject of their own in a label ("suspicious-looking", "a lazy one").
 FILLERS = frozenset(
@@ -81,8 +92,39 @@ is are was were being who that which while during after before outside inside
 """.split()
 )
 
+#: Path parts that put a label among things, not people: "objects/boats/drifter" is a boat,
+#: "animals/dogs/german_shepherd" a dog. Below such a part, terms that judge people only
+#: (scope people) do not fire; slurs and other always-scoped terms still do.
+THING_BRANCHES = frozenset("""
+object objects thing things item items animal animals pet pets bird birds fish insect insects
+plant plants flower flowers tree trees fungi food foods dish dishes drink drinks meal meals
+fruit fruits vegetable vegetables vehicle vehicles car cars boat boats ship ships vessel
+vessels aircraft tool tools equipment furniture appliance appliances device devices product
+products building buildings architecture structure structures place places landscape
+landscapes scenery nature weather material materials texture textures pattern patterns
+artifact artifacts artefact artefacts instrument instruments toy toys clothing garment
+garments document documents
+""".split())
+
 #: Markers that give a person's gender where it is not needed: "male nurse", "lady doctor".
 _SUBSTITUTES = re.compile(r"[0-9@$]")
+_RUNS = re.compile(r"((.)\2*)")
+_ONE_EDIT_MIN_LENGTH = 6
+
+
+def _runs(word: str) -> list[tuple[str, int]]:
+    return [(m.group(2), len(m.group(1))) for m in _RUNS.finditer(word)]
+
+
+def _doubles_letters_of(token: str, form: str) -> bool:
+    """True when ``token`` is ``form`` with some letters repeated ("thuggg" of "thug"), and
+    not merely the same after squeezing ("conn" is not a respelling of "coon")."""
+    if token == form:
+        return False
+    a, b = _runs(token), _runs(form)
+    return len(a) == len(b) and all(
+        ca == cb and na >= nb for (ca, na), (cb, nb) in zip(a, b, strict=True)
+    )
 
 GENDER_MARKERS = frozenset({"male", "female", "lady", "woman", "man", "girl", "boy"})
 
@@ -223,15 +265,12 @@ class Scanner:
             self._unknown_cache[token] = None
             return None
         plain = deobfuscate(token)
-        candidates = [plain, squeeze(plain)]
-        for cand in candidates:
-            if cand in self._single:
-                result = (cand, "fuzzy", float(fuzz.ratio(token, cand)))
-                break
-            form = self._squeezed.get(squeeze(cand))
-            if form is not None and len(cand) >= 3:
+        if plain != token and plain in self._single:
+            result = (plain, "fuzzy", float(fuzz.ratio(token, plain)))
+        if result is None:
+            form = self._squeezed.get(squeeze(plain))
+            if form is not None and _doubles_letters_of(plain, form):
                 result = (form, "fuzzy", float(fuzz.ratio(token, form)))
-                break
         if result is None and len(plain) >= self.fuzzy_min_length:
             choices = self._choices(len(plain))
             best = process.extractOne(
@@ -239,6 +278,13 @@ class Scanner:
             )
             if best is not None:
                 result = (best[0], "fuzzy", float(best[1]))
+            elif len(plain) >= _ONE_EDIT_MIN_LENGTH:
+                # One typo in a mid-length word scores below the ratio threshold ("begger" vs
+                # "beggar" is 83): allow exactly one edit (OSA distance, so a swap of two
+                # neighbouring letters is one edit) for words of 6 letters or more.
+                near = process.extractOne(plain, choices, scorer=OSA.distance, score_cutoff=1)
+                if near is not None and len(near[0]) >= _ONE_EDIT_MIN_LENGTH:
+                    result = (near[0], "fuzzy", float(fuzz.ratio(plain, near[0])))
         self._unknown_cache[token] = result
         return result
 
@@ -302,6 +348,15 @@ class Scanner:
                     break
             if found:
                 continue
+            if i + 1 < n:
+                # "house-wife", "business men": two words written apart that the lexicon
+                # writes as one ("housewife", "businessmen")
+                joined = self._index.get((texts[i] + texts[i + 1],))
+                if joined is not None:
+                    surface = f"{texts[i]} {texts[i + 1]}"
+                    hits.append(_Hit(i, i + 2, joined.term, "variant", 100.0, surface))
+                    i += 2
+                    continue
             word = texts[i]
             if word not in PERSON_NOUNS and word not in FILLERS:
                 resolved = self._resolve_unknown(word)
@@ -340,7 +395,7 @@ class Scanner:
                 nxt in self._person_tokens
                 or nxt in _FUNCTION_WORDS
                 or nxt in FILLERS
-                or (len(nxt) > 4 and nxt.endswith(("ing", "ed")))
+                or (len(nxt) > 4 and nxt.endswith(("ing", "ed")) and nxt not in _THING_ING)
             )
         # modifier: alone (with fillers), or in a segment whose head is a person
         others = [k for k in range(len(texts)) if not hit.start <= k < hit.end]
@@ -363,16 +418,21 @@ class Scanner:
         seen: set[tuple[str, str, int]] = set()
         pending: list[tuple[int, _Hit]] = []
         gender_pending: list[tuple[int, int, str]] = []
+        under_things = False
         for segment in split_segments(label):
             tokens, hits = self._match_segment(segment)
             offset = len(all_tokens)
             all_tokens.extend(t.text for t in tokens)
             for hit in hits:
+                if under_things and hit.term.scope == "people":
+                    continue
                 pending.append((offset, hit))
                 if hit.term.category == "occupation_from_appearance" and hit.start > 0:
                     marker = tokens[hit.start - 1].text
                     if marker in GENDER_MARKERS:
                         gender_pending.append((offset + hit.start - 1, offset + hit.start, marker))
+            if len(tokens) == 1 and tokens[0].text in THING_BRANCHES:
+                under_things = True
         token_tuple = tuple(all_tokens)
         for offset, hit in pending:
             key = (hit.term.category, hit.term.term, offset + hit.start)
@@ -421,8 +481,6 @@ class Scanner:
             )
         why = _first_sentence(category.rationale) or f"it is listed under {title.lower()}"
         reason = f"The label {how} ({title.lower()}): {why[0].lower() + why[1:]}"
-        if term.suggestions:
-            reason = reason.rstrip(".") + f"; consider '{term.suggestions[0]}'."
         return Finding(
             label=label,
             category=term.category,

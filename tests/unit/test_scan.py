@@ -148,7 +148,7 @@ def test_finding_fields(people):
     assert finding.suggestions == ("firefighter",)
     assert finding.reason == (
         "The label contains 'firemen', a form of 'fireman' (gendered role word): gives a gender "
-        "where a neutral word exists; consider 'firefighter'."
+        "where a neutral word exists."
     )
     assert finding.source.endswith("tiny_base.yaml:23")
     assert finding.to_dict()["span"] == [2, 3]

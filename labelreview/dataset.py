@@ -1,0 +1,188 @@
+"""A dataset folder, loaded: its config, annotation frame, taxonomy, item table and reports.
+
+:func:`load_dataset` is what the front ends call: it reads ``labelreview.yaml`` (or detects the
+files), applies the caller's overrides (a different annotation or taxonomy file, an encoding, the
+``subjects`` setting), runs the loaders and keeps their reports, so the CLI can say what was read
+and what was dropped. Nothing here writes to the folder.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+
+import pandas as pd
+
+from labelreview.config import (
+    CONFIG_NAME,
+    AnnotationsConfig,
+    DatasetConfig,
+    TaxonomyConfig,
+    load_config,
+)
+from labelreview.errors import ConfigError, LoadError, UsageError
+from labelreview.io import detect_format, load_annotations, load_items, load_taxonomy
+from labelreview.io._common import check_encoding
+from labelreview.model import SUBJECTS, LoadReport, TaxonomyLabel
+
+LABEL_COLUMNS: tuple[str, ...] = ("label", "count", "in_taxonomy", "in_annotations")
+
+
+@dataclass
+class Dataset:
+    """Everything read from one dataset folder."""
+
+    root: Path
+    config: DatasetConfig
+    """The config actually used (overrides applied)."""
+    annotations: pd.DataFrame | None
+    """The annotation frame (``item``, ``annotator``, ``label``), or None without a file."""
+    taxonomy: list[TaxonomyLabel] = field(default_factory=list)
+    items: pd.DataFrame | None = None
+    reports: list[LoadReport] = field(default_factory=list)
+
+    def labels(self) -> pd.DataFrame:
+        """Every distinct label in the taxonomy and the annotations, sorted.
+
+        Returns:
+            Columns ``label``; ``count`` (annotation rows carrying it, 0 for taxonomy-only
+            labels); ``in_taxonomy`` and ``in_annotations`` (booleans: where it came from).
+        """
+        if self.annotations is not None and len(self.annotations):
+            counts = self.annotations["label"].value_counts(sort=False)
+        else:
+            counts = pd.Series(dtype="int64")
+        counted = {str(label): int(n) for label, n in counts.items()}
+        taxonomy = {label.name for label in self.taxonomy}
+        names = sorted(taxonomy | set(counted))
+        return pd.DataFrame(
+            {
+                "label": pd.Series(names, dtype=str),
+                "count": pd.Series([counted.get(n, 0) for n in names], dtype="int64"),
+                "in_taxonomy": pd.Series([n in taxonomy for n in names], dtype=bool),
+                "in_annotations": pd.Series([n in counted for n in names], dtype=bool),
+            },
+            columns=list(LABEL_COLUMNS),
+        )
+
+
+def _must_exist(config: DatasetConfig, path: Path, key: str) -> None:
+    if path.is_file():
+        return
+    if config.source is not None and config.line_of(key) is not None:
+        raise ConfigError(
+            f"{key} names '{path.name}', which does not exist in {config.root}",
+            hint=f"Correct {key} in {CONFIG_NAME}.",
+            source=str(config.source),
+            line=config.line_of(key),
+        )
+    raise LoadError("the file does not exist", source=str(path))
+
+
+def load_dataset(
+    dataset_dir: Path,
+    *,
+    annotations: Path | None = None,
+    taxonomy: Path | None = None,
+    encoding: str | None = None,
+    subjects: str | None = None,
+) -> Dataset:
+    """Load a dataset folder as its config (or detection) says, with overrides winning.
+
+    Args:
+        dataset_dir: The dataset folder.
+        annotations: Read this annotation file instead (format detected from it; the config's
+            layout, columns and separator still apply).
+        taxonomy: Read this taxonomy file instead (format detected from it).
+        encoding: The text encoding of every file read, replacing the config's.
+        subjects: ``people``, ``mixed`` or ``none``, replacing the config's.
+
+    Returns:
+        The dataset. ``annotations`` is None only when no annotation file is configured or found
+        and a taxonomy is; ``reports`` holds one report per file read.
+
+    Raises:
+        ConfigError: Bad config, or a configured file that does not exist (names the key's line).
+        LoadError: A file cannot be read, or the folder has neither annotations nor taxonomy.
+        UsageError: ``subjects`` or ``encoding`` is not a known value.
+    """
+    root = Path(dataset_dir)
+    if subjects is not None and subjects not in SUBJECTS:
+        raise UsageError(f"subjects must be one of {', '.join(SUBJECTS)}; got {subjects!r}")
+    check_encoding(encoding)
+    config = load_config(root)
+    if subjects is not None:
+        config = replace(config, subjects=subjects)  # type: ignore[arg-type]
+    if annotations is not None:
+        base = config.annotations or AnnotationsConfig(path=None)
+        config = replace(config, annotations=replace(base, path=Path(annotations), format="auto"))
+    if taxonomy is not None:
+        config = replace(config, taxonomy=TaxonomyConfig(path=Path(taxonomy)))
+    if encoding is not None:
+        if config.annotations is not None:
+            config = replace(config, annotations=replace(config.annotations, encoding=encoding))
+        if config.taxonomy is not None:
+            config = replace(config, taxonomy=replace(config.taxonomy, encoding=encoding))
+        if config.items is not None:
+            config = replace(config, items=replace(config.items, encoding=encoding))
+
+    reports: list[LoadReport] = []
+    frame: pd.DataFrame | None = None
+    ann = config.annotations
+    if ann is not None and ann.path is not None:
+        if annotations is None:
+            _must_exist(config, ann.path, "annotations.path")
+        frame, report = load_annotations(
+            ann.path,
+            fmt=ann.format,
+            layout=ann.layout,
+            columns=ann.columns,
+            annotator_columns=ann.annotator_columns,
+            multi_label_separator=ann.multi_label_separator,
+            encoding=ann.encoding,
+        )
+        reports.append(report)
+
+    labels: list[TaxonomyLabel] = []
+    tax = config.taxonomy
+    if tax is not None:
+        if taxonomy is None:
+            _must_exist(config, tax.path, "taxonomy.path")
+        labels = load_taxonomy(tax.path, fmt=tax.format, encoding=tax.encoding)
+        used = tax.format if tax.format != "auto" else detect_format(tax.path, kind="taxonomy")
+        reports.append(LoadReport(path=str(tax.path), format=used, rows_read=len(labels)))
+
+    if frame is None and not labels:
+        seen = sorted(p.name for p in root.iterdir() if p.is_file() and not p.name.startswith("."))
+        listing = ", ".join(seen) if seen else "(no files)"
+        raise LoadError(
+            f"found no annotation or taxonomy file here; files seen: {listing}",
+            hint=f"Run `labelreview init {root}` to write a {CONFIG_NAME} naming them, or pass "
+            "--annotations.",
+            source=str(root),
+        )
+
+    items: pd.DataFrame | None = None
+    if config.items is not None:
+        _must_exist(config, config.items.path, "items.path")
+        items = load_items(
+            config.items.path,
+            columns=config.items.columns,
+            attributes=config.items.attributes,
+            encoding=config.items.encoding,
+        )
+        reports.append(
+            LoadReport(
+                path=str(config.items.path),
+                format=detect_format(config.items.path, kind="items"),
+                rows_read=len(items),
+            )
+        )
+    return Dataset(
+        root=root,
+        config=config,
+        annotations=frame,
+        taxonomy=labels,
+        items=items,
+        reports=reports,
+    )
