@@ -170,7 +170,6 @@ def _run_scan(
     extra_layers: tuple[Path, ...] = (),
 ) -> Any:
     from labelreview.dataset import load_dataset
-
     from labelreview.lexicon import load_lexicon
     from labelreview.report import label_usage, scan_usage
 
@@ -252,7 +251,9 @@ def _scan_table(result: Any) -> str:
             )
             lines.extend(
                 textwrap.wrap(
-                    r["reason"], width=max(width, 60), initial_indent=" " * 10 + "why: ",
+                    r["reason"],
+                    width=max(width, 60),
+                    initial_indent=" " * 10 + "why: ",
                     subsequent_indent=" " * 15,
                 )
             )
@@ -260,8 +261,9 @@ def _scan_table(result: Any) -> str:
                 lines.append(f"{'':10}try: {', '.join(r['suggestions'])}")
     lines.append("")
     for caution in CAUTIONS:
-        lines.extend(textwrap.wrap(caution, width=100, initial_indent="note: ",
-                                   subsequent_indent="      "))
+        lines.extend(
+            textwrap.wrap(caution, width=100, initial_indent="note: ", subsequent_indent="      ")
+        )
     return "\n".join(lines)
 
 

@@ -607,15 +607,15 @@ def collect_problems(
     for term in active.values():
         for variant in term.variants:
             vkey = term_tokens(variant)
-            other = owner.get(vkey)
-            if other is not None and other is not term:
+            clash = owner.get(vkey)
+            if clash is not None and clash is not term:
                 problems.append(
                     Problem(
                         term.source.rsplit(":", 1)[0],
                         int(term.source.rsplit(":", 1)[1]),
                         f"variant '{variant}' of '{term.term}' is also the term or a variant of "
-                        f"'{other.term}' ({other.source}); keep it in one entry",
-                        "warning" if other.category == term.category else "error",
+                        f"'{clash.term}' ({clash.source}); keep it in one entry",
+                        "warning" if clash.category == term.category else "error",
                     )
                 )
             else:

@@ -64,16 +64,19 @@ player players face faces portrait portraits selfie headshot figure figures male
 female females stranger strangers local locals elder elders senior seniors member members
 worker workers professional professionals character characters owner owners employee
 employees staff tenant tenants landlord landlords patient patients bride brides
-""".split())
+""".split()
+)
 
 #: Words ending in -ing or -ed that are things, not what a person is doing: after a person noun
 #: they make it a modifier ("derelict building"), unlike "beggar sitting".
-_THING_ING = frozenset("""
+_THING_ING = frozenset(
+    """
 building buildings clothing painting paintings drawing drawings ring rings wedding ceiling
 housing bedding filling stuffing frosting icing pudding topping dressing covering lighting
 fitting fittings setting landing crossing opening evening morning string wing spring thing
 things railing siding roofing flooring plumbing wiring seating parking shed bed bred
-""".split())
+""".split()
+)
 
 #: Words that carry no subject of their own in a label ("suspicious-looking", "a lazy one").
 FILLERS = frozenset(
@@ -95,7 +98,8 @@ is are was were being who that which while during after before outside inside
 #: Path parts that put a label among things, not people: "objects/boats/drifter" is a boat,
 #: "animals/dogs/german_shepherd" a dog. Below such a part, terms that judge people only
 #: (scope people) do not fire; slurs and other always-scoped terms still do.
-THING_BRANCHES = frozenset("""
+THING_BRANCHES = frozenset(
+    """
 object objects thing things item items animal animals pet pets bird birds fish insect insects
 plant plants flower flowers tree trees fungi food foods dish dishes drink drinks meal meals
 fruit fruits vegetable vegetables vehicle vehicles car cars boat boats ship ships vessel
@@ -104,7 +108,8 @@ products building buildings architecture structure structures place places lands
 landscapes scenery nature weather material materials texture textures pattern patterns
 artifact artifacts artefact artefacts instrument instruments toy toys clothing garment
 garments document documents
-""".split())
+""".split()
+)
 
 #: Markers that give a person's gender where it is not needed: "male nurse", "lady doctor".
 _SUBSTITUTES = re.compile(r"[0-9@$]")
@@ -125,6 +130,7 @@ def _doubles_letters_of(token: str, form: str) -> bool:
     return len(a) == len(b) and all(
         ca == cb and na >= nb for (ca, na), (cb, nb) in zip(a, b, strict=True)
     )
+
 
 GENDER_MARKERS = frozenset({"male", "female", "lady", "woman", "man", "girl", "boy"})
 

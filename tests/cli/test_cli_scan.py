@@ -46,14 +46,21 @@ def test_scan_json_on_sample_set(sample: Path):
     assert result.exit_code == 0, result.stderr
     findings = json.loads(result.stdout)  # stdout holds only data
     labels = {f["label"] for f in findings}
-    for planted in ("people/character/lazy_worker", "people/roles/cleaning_lady",
-                    "people/status/vagrant", "people/health/cripple"):
+    for planted in (
+        "people/character/lazy_worker",
+        "people/roles/cleaning_lady",
+        "people/status/vagrant",
+        "people/health/cripple",
+    ):
         assert planted in labels
-    for benign in ("animals/fish/nurse_shark", "objects/household/lazy_susan",
-                   "objects/boats/man_of_war", "objects/food/black_coffee"):
+    for benign in (
+        "animals/fish/nurse_shark",
+        "objects/household/lazy_susan",
+        "objects/boats/man_of_war",
+        "objects/food/black_coffee",
+    ):
         assert benign not in labels
-    required = {"label", "category", "severity", "term", "match", "score", "suggestions",
-                "reason"}
+    required = {"label", "category", "severity", "term", "match", "score", "suggestions", "reason"}
     assert all(required <= set(f) for f in findings)
     lazy = next(f for f in findings if f["label"] == "people/character/lazy_worker")
     assert lazy["annotations"] > 0 and lazy["items"] > 0
@@ -83,8 +90,9 @@ def test_scan_without_config_defaults_to_mixed(tmp_path: Path):
 def test_subjects_none_silences_people_only_terms(tmp_path: Path):
     ann = tmp_path / "ann.csv"
     ann.write_text("item,annotator,label\n1,a,nurse\n2,a,fireman\n", encoding="utf-8")
-    result = run("scan", str(tmp_path), "--annotations", str(ann), "--subjects", "none",
-                 "--format", "json")
+    result = run(
+        "scan", str(tmp_path), "--annotations", str(ann), "--subjects", "none", "--format", "json"
+    )
     assert result.exit_code == 0
     # the occupation needs a depicted person; a gendered role word is flagged regardless
     assert [f["label"] for f in json.loads(result.stdout)] == ["fireman"]
@@ -100,8 +108,14 @@ def test_zero_findings_csv_still_has_header(tmp_path: Path):
 
 
 def test_duplicates_are_reported_on_stderr(tmp_path: Path):
-    result = run("scan", str(tmp_path), "--annotations", str(DATA / "io" / "duplicates.csv"),
-                 "--format", "json")
+    result = run(
+        "scan",
+        str(tmp_path),
+        "--annotations",
+        str(DATA / "io" / "duplicates.csv"),
+        "--format",
+        "json",
+    )
     assert result.exit_code == 0
     assert "duplicate" in result.stderr
     json.loads(result.stdout)
@@ -128,8 +142,16 @@ def test_bad_input_is_one_line_exit_2(tmp_path: Path, args, message):
 
 
 def test_encoding_option_reads_latin1(tmp_path: Path):
-    result = run("scan", str(tmp_path), "--annotations", str(DATA / "io" / "latin1.csv"),
-                 "--encoding", "latin-1", "--format", "json")
+    result = run(
+        "scan",
+        str(tmp_path),
+        "--annotations",
+        str(DATA / "io" / "latin1.csv"),
+        "--encoding",
+        "latin-1",
+        "--format",
+        "json",
+    )
     assert result.exit_code == 0, result.stderr
 
 
@@ -158,8 +180,9 @@ def test_lexicon_layer_from_config_applies(sample: Path):
     config = sample / "labelreview.yaml"
     text = config.read_text(encoding="utf-8")
     assert "layers: []" in text
-    config.write_text(text.replace("layers: []", "layers: [dataset_lexicon.yaml]"),
-                      encoding="utf-8")
+    config.write_text(
+        text.replace("layers: []", "layers: [dataset_lexicon.yaml]"), encoding="utf-8"
+    )
     result = run("scan", str(sample), "--format", "json")
     assert result.exit_code == 0, result.stderr
     assert "people/roles/teacher" not in {f["label"] for f in json.loads(result.stdout)}
@@ -167,7 +190,8 @@ def test_lexicon_layer_from_config_applies(sample: Path):
 
 def test_init_writes_once_and_never_overwrites(tmp_path: Path):
     (tmp_path / "annotations.csv").write_text(
-        "photo_id,volunteer,tag\np1,v1,lazy\n", encoding="utf-8")
+        "photo_id,volunteer,tag\np1,v1,lazy\n", encoding="utf-8"
+    )
     first = run("init", str(tmp_path))
     assert first.exit_code == 0, first.stderr
     written = (tmp_path / "labelreview.yaml").read_text(encoding="utf-8")
@@ -205,15 +229,29 @@ def test_console_entry_point_runs(tmp_path: Path):
     ann = tmp_path / "ann.csv"
     ann.write_text("item,annotator,label\n1,a,thug\n", encoding="utf-8")
     proc = subprocess.run(
-        [sys.executable, "-m", "labelreview", "scan", str(tmp_path), "--annotations", str(ann),
-         "--format", "json"],
-        capture_output=True, text=True, check=False,
+        [
+            sys.executable,
+            "-m",
+            "labelreview",
+            "scan",
+            str(tmp_path),
+            "--annotations",
+            str(ann),
+            "--format",
+            "json",
+        ],
+        capture_output=True,
+        text=True,
+        check=False,
     )
     assert proc.returncode == 0, proc.stderr
     assert json.loads(proc.stdout)[0]["term"] == "thug"
     bad = subprocess.run(
         [sys.executable, "-m", "labelreview", "scan", str(tmp_path), "--annotations", "nope.csv"],
-        capture_output=True, text=True, check=False, cwd=tmp_path,
+        capture_output=True,
+        text=True,
+        check=False,
+        cwd=tmp_path,
     )
     assert bad.returncode == 2
     assert len(bad.stderr.strip().splitlines()) == 1
