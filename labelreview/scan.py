@@ -112,6 +112,7 @@ garments document documents
 )
 
 #: Markers that give a person's gender where it is not needed: "male nurse", "lady doctor".
+_NEVER_FUZZY = PERSON_NOUNS | FILLERS
 _SUBSTITUTES = re.compile(r"[0-9@$]")
 _RUNS = re.compile(r"((.)\2*)")
 _ONE_EDIT_MIN_LENGTH = 6
@@ -284,13 +285,18 @@ class Scanner:
             )
             if best is not None:
                 result = (best[0], "fuzzy", float(best[1]))
-            elif len(plain) >= _ONE_EDIT_MIN_LENGTH:
-                # One typo in a mid-length word scores below the ratio threshold ("begger" vs
-                # "beggar" is 83): allow exactly one edit (OSA distance, so a swap of two
-                # neighbouring letters is one edit) for words of 6 letters or more.
+            else:
+                # One typo in a short or mid-length word scores below the ratio threshold
+                # ("begger" vs "beggar" is 83): allow exactly one edit (OSA distance, so a swap
+                # of two neighbouring letters counts as one) for words of 6 letters or more, and
+                # only a swap ("theif") for 5-letter words.
                 near = process.extractOne(plain, choices, scorer=OSA.distance, score_cutoff=1)
-                if near is not None and len(near[0]) >= _ONE_EDIT_MIN_LENGTH:
-                    result = (near[0], "fuzzy", float(fuzz.ratio(plain, near[0])))
+                if near is not None:
+                    form = near[0]
+                    long_enough = len(plain) >= _ONE_EDIT_MIN_LENGTH <= len(form)
+                    swapped = len(plain) == len(form) and sorted(plain) == sorted(form)
+                    if long_enough or swapped:
+                        result = (form, "fuzzy", float(fuzz.ratio(plain, form)))
         self._unknown_cache[token] = result
         return result
 
@@ -330,47 +336,46 @@ class Scanner:
         texts = [t.text for t in tokens]
         n = len(texts)
         hits: list[_Hit] = []
-        i = 0
         starts = self._starts
+        single = self._single
+        unknown = self._unknown_cache
+        skip = _NEVER_FUZZY
+        i = 0
         while i < n:
-            found = False
-            for length in starts.get(texts[i], ()):
-                if length > n - i:
+            word = texts[i]
+            lengths = starts.get(word)
+            if lengths is not None:
+                found = 0
+                for length in lengths:
+                    if length <= n - i:
+                        form = self._index.get(tuple(texts[i : i + length]))
+                        if form is not None:
+                            surface = " ".join(texts[i : i + length])
+                            hits.append(_Hit(i, i + length, form.term, form.kind, 100.0, surface))
+                            found = length
+                            break
+                if found:
+                    i += found
                     continue
-                form = self._index.get(tuple(texts[i : i + length]))
-                if form is not None:
-                    hits.append(
-                        _Hit(
-                            i,
-                            i + length,
-                            form.term,
-                            form.kind,
-                            100.0,
-                            " ".join(texts[i : i + length]),
-                        )
-                    )
-                    i += length
-                    found = True
-                    break
-            if found:
-                continue
             if i + 1 < n:
                 # "house-wife", "business men": two words written apart that the lexicon
                 # writes as one ("housewife", "businessmen")
-                joined = self._index.get((texts[i] + texts[i + 1],))
+                joined = single.get(word + texts[i + 1])
                 if joined is not None:
-                    surface = f"{texts[i]} {texts[i + 1]}"
+                    surface = f"{word} {texts[i + 1]}"
                     hits.append(_Hit(i, i + 2, joined.term, "variant", 100.0, surface))
                     i += 2
                     continue
-            word = texts[i]
-            if word not in PERSON_NOUNS and word not in FILLERS:
-                resolved = self._resolve_unknown(word)
+            if word not in skip:
+                resolved = unknown[word] if word in unknown else self._resolve_unknown(word)
                 if resolved is not None:
                     form_text, kind, score = resolved
-                    hits.append(_Hit(i, i + 1, self._single[form_text].term, kind, score, word))
+                    hits.append(_Hit(i, i + 1, single[form_text].term, kind, score, word))
             i += 1
-        kept = tuple(h for h in hits if self._speaks_of_person(h, tokens, hits))
+        if hits:
+            kept = tuple(h for h in hits if self._speaks_of_person(h, tokens, hits))
+        else:
+            kept = ()
         result = (tokens, kept)
         self._segment_cache[segment] = result
         return result
@@ -419,14 +424,16 @@ class Scanner:
         """All findings for one label (empty when nothing matched)."""
         if not label or (self.lexicon.allow_labels and fold(label) in self.lexicon.allow_labels):
             return []
+        matched = [self._match_segment(segment) for segment in split_segments(label)]
+        if not any(hits for _, hits in matched):
+            return []  # the common case: nothing to explain, nothing more to build
         all_tokens: list[str] = []
         findings: list[Finding] = []
         seen: set[tuple[str, str, int]] = set()
         pending: list[tuple[int, _Hit]] = []
         gender_pending: list[tuple[int, int, str]] = []
         under_things = False
-        for segment in split_segments(label):
-            tokens, hits = self._match_segment(segment)
+        for tokens, hits in matched:
             offset = len(all_tokens)
             all_tokens.extend(t.text for t in tokens)
             for hit in hits:
