@@ -61,7 +61,7 @@ neighbours neighbor neighbors resident residents citizen citizens passenger pass
 pedestrian pedestrians customer customers visitor visitors tourist tourists spectator
 spectators participant participants volunteer volunteers student students pupil pupils
 player players face faces portrait portraits selfie headshot figure figures male males
-female females stranger strangers local locals elder elders senior seniors member members
+female females stranger strangers local locals senior seniors member members
 worker workers professional professionals character characters owner owners employee
 employees staff tenant tenants landlord landlords patient patients bride brides
 """.split()
@@ -395,28 +395,31 @@ class Scanner:
             return True
         covered = {k for h in hits for k in range(h.start, h.end)}
         if hit.term.form == "noun":
-            last = tokens[hit.end - 1]
-            rest = texts[hit.end :]
-            if not rest:
-                return True
-            if last.possessive:
-                return False
-            nxt = rest[0]
-            return (
-                nxt in self._person_tokens
-                or nxt in _FUNCTION_WORDS
-                or nxt in FILLERS
-                or (len(nxt) > 4 and nxt.endswith(("ing", "ed")) and nxt not in _THING_ING)
-            )
-        # modifier: alone (with fillers), or in a segment whose head is a person
+            return self._heads(tokens, hit.end)
+        # modifier: alone (with fillers), or beside a person noun that heads the segment
         others = [k for k in range(len(texts)) if not hit.start <= k < hit.end]
         if all(k in covered or texts[k] in FILLERS for k in others):
             return True
-        for k in others:
-            tok = tokens[k]
-            if texts[k] in self._person_tokens and (not tok.possessive or k == len(texts) - 1):
-                return True
-        return False
+        return any(texts[k] in self._person_tokens and self._heads(tokens, k + 1) for k in others)
+
+    def _heads(self, tokens: tuple[Token, ...], end: int) -> bool:
+        """Does the noun ending at token ``end`` head its segment (rather than modify a thing)?
+
+        True at the end of the segment, or when what follows keeps it a person: another person
+        noun, a function word ("fireman on duty"), a filler, or a verb form ("beggar sitting").
+        A possessive ("fireman's carry") modifies what follows.
+        """
+        if end >= len(tokens):
+            return True
+        if tokens[end - 1].possessive:
+            return False
+        nxt = tokens[end].text
+        return (
+            nxt in self._person_tokens
+            or nxt in _FUNCTION_WORDS
+            or nxt in FILLERS
+            or (len(nxt) > 4 and nxt.endswith(("ing", "ed")) and nxt not in _THING_ING)
+        )
 
     # -- public ----------------------------------------------------------------------------
 

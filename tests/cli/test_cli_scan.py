@@ -243,6 +243,7 @@ def test_console_entry_point_runs(tmp_path: Path):
         capture_output=True,
         text=True,
         check=False,
+        cwd=tmp_path,  # outside the checkout: the installed package must find its lexicons
     )
     assert proc.returncode == 0, proc.stderr
     assert json.loads(proc.stdout)[0]["term"] == "thug"
