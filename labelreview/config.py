@@ -590,6 +590,18 @@ _ITEM_WORDS = (
     "record",
 )
 _TEXT_NAMES = ("text", "caption", "description", "sentence", "transcript")
+_PREVIEW_NAMES = (
+    "preview",
+    "image_file",
+    "image_path",
+    "file",
+    "filename",
+    "file_name",
+    "path",
+    "url",
+    "image_url",
+    "thumbnail",
+)
 
 
 @dataclass
@@ -722,13 +734,20 @@ def _classify(path: Path) -> list[_Found]:
                 )
             )
         texty = normal & set(_TEXT_NAMES)
+        item_columns = {"item": roles["item"][0]} if len(roles["item"]) == 1 else {}
+        for column in header:
+            key = normalise_header(column)
+            if "text" not in item_columns and key in _TEXT_NAMES:
+                item_columns["text"] = column
+            elif "preview" not in item_columns and key in _PREVIEW_NAMES:
+                item_columns["preview"] = column
         out.append(
             _Found(
                 path,
                 "items",
                 1 + 2 * _has_word(stem, _ITEM_WORDS) + bool(texty),
                 not_utf8=not utf8,
-                columns={"item": roles["item"][0]} if len(roles["item"]) == 1 else {},
+                columns=item_columns,
             )
         )
     return out
@@ -938,8 +957,9 @@ def _starter_text(root: Path, found: _Sniffed) -> str:
             "items:                        # one row per item: its text and preview",
             f"  path: {_q(found.items.path.name)}",
         ]
-        if "item" in found.items.columns:
-            lines.append(f"  columns: {{item: {_q(found.items.columns['item'])}}}")
+        if found.items.columns:
+            pairs = ", ".join(f"{role}: {_q(col)}" for role, col in found.items.columns.items())
+            lines.append(f"  columns: {{{pairs}}}")
         lines += attribute_help
     lines += [
         "",

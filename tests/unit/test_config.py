@@ -273,7 +273,11 @@ def test_starter_config_is_written_and_loads(tmp_path: Path) -> None:
         "annotator": "volunteer",
         "label": "tag",
     }
-    assert config.items is not None and config.items.columns == {"item": "photo_id"}
+    assert config.items is not None and config.items.columns == {
+        "item": "photo_id",
+        "text": "caption",
+        "preview": "image_file",
+    }
     assert config.taxonomy is not None
     assert {p.name: p.read_bytes() for p in folder.iterdir() if p != path} == before
 
