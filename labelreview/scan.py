@@ -63,7 +63,7 @@ spectators participant participants volunteer volunteers student students pupil 
 player players face faces portrait portraits selfie headshot figure figures male males
 female females stranger strangers local locals senior seniors member members
 worker workers professional professionals character characters owner owners employee
-employees staff tenant tenants landlord landlords patient patients bride brides
+employees staff tenant tenants landlord landlords patient patients bride brides tribe tribes
 """.split()
 )
 
