@@ -24,6 +24,7 @@ from typing import Any
 import yaml
 from yaml.constructor import ConstructorError, SafeConstructor
 
+from labelreview._yaml import compose
 from labelreview.errors import ConfigError, UsageError
 from labelreview.io._annotations import (
     ANNOTATION_FORMATS,
@@ -311,20 +312,7 @@ def _kind(value: Any) -> str:
 
 
 def _parse(path: Path, root: Path, text: str) -> DatasetConfig:
-    try:
-        loader = yaml.SafeLoader(text)
-        try:
-            tree = loader.get_single_node()
-        finally:
-            loader.dispose()
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark or exc.context_mark
-        raise ConfigError(
-            f"not valid YAML: {exc.problem or exc.context}",
-            source=str(path),
-            line=mark.line + 1 if mark else None,
-            column=mark.column + 1 if mark else None,
-        ) from None
+    tree = compose(path, text, ConfigError)
     reader = _Reader(path, root)
     if tree is None:
         top: dict[str, yaml.Node] = {}

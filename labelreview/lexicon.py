@@ -22,6 +22,7 @@ from typing import Any
 import yaml
 
 from labelreview._resources import lexicons_dir
+from labelreview._yaml import compose
 from labelreview.errors import LexiconError
 from labelreview.model import SEVERITIES
 from labelreview.text import fold, term_tokens
@@ -203,16 +204,7 @@ def _read_yaml(path: Path) -> Any:
             source=str(path),
             hint="Lexicon files must be saved as UTF-8.",
         ) from None
-    try:
-        node = yaml.compose(text, Loader=yaml.SafeLoader)
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark
-        raise LexiconError(
-            f"not valid YAML: {exc.problem}",
-            source=str(path),
-            line=mark.line + 1 if mark else None,
-            column=mark.column + 1 if mark else None,
-        ) from None
+    node = compose(path, text, LexiconError)
     if node is None:
         return None
     return _construct(node, str(path))

@@ -21,6 +21,7 @@ from typing import Any
 
 import yaml
 
+from labelreview._yaml import compose
 from labelreview.errors import LoadError, UsageError
 from labelreview.io._common import (
     MAX_FIELD_CHARS,
@@ -262,22 +263,7 @@ def _read_csv(path: Path, text: str, delimiter: str) -> list[TaxonomyLabel]:
 
 
 def _read_yaml(path: Path, text: str) -> list[TaxonomyLabel]:
-    try:
-        loader = yaml.SafeLoader(text)
-        try:
-            root = loader.get_single_node()
-        finally:
-            loader.dispose()
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark or exc.context_mark
-        raise LoadError(
-            f"not valid YAML: {exc.problem or exc.context}",
-            source=str(path),
-            line=mark.line + 1 if mark else None,
-            column=mark.column + 1 if mark else None,
-        ) from None
-    except yaml.YAMLError as exc:
-        raise LoadError(f"not valid YAML: {exc}", source=str(path)) from None
+    root = compose(path, text, LoadError)
     if root is None:
         raise LoadError("the file is empty", source=str(path))
     labels: list[TaxonomyLabel] = []
