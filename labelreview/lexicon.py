@@ -247,7 +247,7 @@ def _str_list(
 def _parse_file(
     path: Path, problems: list[Problem], categories: dict[str, Category]
 ) -> _FileContent:
-    spath = str(path)
+    spath = _display(path)
     data = _read_yaml(path)
     content = _FileContent(spath)
     if data is None:
