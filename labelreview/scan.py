@@ -15,6 +15,7 @@ modifiers must stand alone or beside a person noun ("lazy worker", not "lazy riv
 
 from __future__ import annotations
 
+import gc
 import gzip
 import re
 from collections.abc import Iterable
@@ -23,6 +24,7 @@ from functools import lru_cache
 from importlib import resources
 from pathlib import Path
 
+import numpy as np
 from rapidfuzz import fuzz, process
 from rapidfuzz.distance import OSA
 
@@ -233,15 +235,19 @@ class Scanner:
         self._starts = {w: tuple(sorted(ls, reverse=True)) for w, ls in lengths.items()}
         single = {k[0]: f for k, f in self._index.items() if len(k) == 1}
         self._single = single
+        # first parts of one-word forms ("house" of "housewife"): only these can start a
+        # compound written as two words, so other words skip that lookup
+        self._compound_heads = {f[:k] for f in single for k in range(2, len(f) - 1)}
         self._squeezed: dict[str, str] = {}
         for form in sorted(single):
             self._squeezed.setdefault(squeeze(form), form)
-        self._by_length: dict[int, list[str]] = {}
-        for form in sorted(single):
-            self._by_length.setdefault(len(form), []).append(form)
+        self._fuzzy_forms = sorted(
+            (f for f in single if len(f) >= self.fuzzy_min_length), key=lambda f: (len(f), f)
+        )
+        self._fuzzy_lengths = np.array([len(f) for f in self._fuzzy_forms])
         self._segment_cache: dict[str, tuple[tuple[Token, ...], tuple[_Hit, ...]]] = {}
         self._unknown_cache: dict[str, tuple[str, str, float] | None] = {}
-        self._choice_cache: dict[int, list[str]] = {}
+        self._live: dict[str, bool] = {}
         self._vocabulary = english_words()
 
     # -- building ---------------------------------------------------------------------------
@@ -265,53 +271,92 @@ class Scanner:
 
     def _resolve_unknown(self, token: str) -> tuple[str, str, float] | None:
         """Fuzzy or obfuscated match of one token: (form, kind, score) or None."""
-        if token in self._unknown_cache:
-            return self._unknown_cache[token]
-        result: tuple[str, str, float] | None = None
-        if _SUBSTITUTES.search(token) is None and self._is_word(token):
-            self._unknown_cache[token] = None
-            return None
-        plain = deobfuscate(token)
-        if plain != token and plain in self._single:
-            result = (plain, "fuzzy", float(fuzz.ratio(token, plain)))
-        if result is None:
-            form = self._squeezed.get(squeeze(plain))
-            if form is not None and _doubles_letters_of(plain, form):
-                result = (form, "fuzzy", float(fuzz.ratio(token, form)))
-        if result is None and len(plain) >= self.fuzzy_min_length:
-            choices = self._choices(len(plain))
-            best = process.extractOne(
-                plain, choices, scorer=fuzz.ratio, score_cutoff=self.fuzzy_threshold
-            )
-            if best is not None:
-                result = (best[0], "fuzzy", float(best[1]))
-            else:
-                # One typo in a short or mid-length word scores below the ratio threshold
-                # ("begger" vs "beggar" is 83): allow exactly one edit (OSA distance, so a swap
-                # of two neighbouring letters counts as one) for words of 6 letters or more, and
-                # only a swap ("theif") for 5-letter words.
-                near = process.extractOne(plain, choices, scorer=OSA.distance, score_cutoff=1)
-                if near is not None:
-                    form = near[0]
-                    long_enough = len(plain) >= _ONE_EDIT_MIN_LENGTH <= len(form)
-                    swapped = len(plain) == len(form) and sorted(plain) == sorted(form)
-                    if long_enough or swapped:
-                        result = (form, "fuzzy", float(fuzz.ratio(plain, form)))
-        self._unknown_cache[token] = result
-        return result
+        if token not in self._unknown_cache:
+            self._resolve_many([token])
+        return self._unknown_cache[token]
 
-    def _choices(self, length: int) -> list[str]:
-        """Single-word term forms within two letters of ``length`` (ratio needs similar size)."""
-        cached = self._choice_cache.get(length)
-        if cached is None:
-            cached = [
-                f
-                for n in range(length - 2, length + 3)
-                for f in self._by_length.get(n, ())
-                if len(f) >= self.fuzzy_min_length
-            ]
-            self._choice_cache[length] = cached
-        return cached
+    def _resolve_many(self, tokens: Iterable[str]) -> None:
+        """Resolve unknown tokens in one batch: cheap rules first, then one rapidfuzz matrix.
+
+        Batching matters: ``process.cdist`` over all candidate tokens at once is about ten
+        times faster than one ``extractOne`` per token.
+        """
+        fuzzy: dict[str, list[str]] = {}  # plain form -> the tokens that fold to it
+        for token in tokens:
+            if token in self._unknown_cache:
+                continue
+            result: tuple[str, str, float] | None = None
+            if _SUBSTITUTES.search(token) is None and self._is_word(token):
+                self._unknown_cache[token] = None
+                continue
+            plain = deobfuscate(token)
+            if plain != token and plain in self._single:
+                result = (plain, "fuzzy", float(fuzz.ratio(token, plain)))
+            if result is None:
+                form = self._squeezed.get(squeeze(plain))
+                if form is not None and _doubles_letters_of(plain, form):
+                    result = (form, "fuzzy", float(fuzz.ratio(token, form)))
+            self._unknown_cache[token] = result
+            if result is None and len(plain) >= self.fuzzy_min_length:
+                fuzzy.setdefault(plain, []).append(token)
+        if not fuzzy or not self._fuzzy_forms:
+            return
+        plains = list(fuzzy)
+        for plain, result in zip(plains, self._fuzzy_batch(plains), strict=True):
+            for token in fuzzy[plain]:
+                self._unknown_cache[token] = result
+
+    def _fuzzy_batch(self, plains: list[str]) -> list[tuple[str, str, float] | None]:
+        forms = self._fuzzy_forms  # one-word forms, sorted by (length, text)
+        lengths = self._fuzzy_lengths
+        query_lengths = np.array([len(p) for p in plains])
+        # ratio needs similar sizes: only forms within two letters of the token's length
+        window = np.abs(query_lengths[:, None] - lengths[None, :]) <= 2
+        ratios = process.cdist(
+            plains,
+            forms,
+            scorer=fuzz.ratio,
+            score_cutoff=self.fuzzy_threshold,
+            dtype=np.float32,
+            workers=-1,
+        )
+        ratios[~window] = 0
+        edits = process.cdist(
+            plains, forms, scorer=OSA.distance, score_cutoff=1, dtype=np.int32, workers=-1
+        )
+        best_cols = ratios.argmax(axis=1)
+        best_scores = ratios[np.arange(len(plains)), best_cols]
+        near_any = ((edits <= 1) & window).any(axis=1)
+        out: list[tuple[str, str, float] | None] = []
+        for row, plain in enumerate(plains):
+            if best_scores[row] > 0:
+                out.append((forms[int(best_cols[row])], "fuzzy", float(best_scores[row])))
+                continue
+            if not near_any[row]:
+                out.append(None)
+                continue
+            # One typo in a short or mid-length word scores below the ratio threshold
+            # ("begger" vs "beggar" is 83): allow exactly one edit (OSA distance, so a swap of
+            # two neighbouring letters counts as one) for words of 6 letters or more, and only
+            # a swap ("theif") for 5-letter words.
+            near = np.flatnonzero((edits[row] <= 1) & window[row])
+            result: tuple[str, str, float] | None = None
+            if near.size:
+                form = forms[int(near[0])]
+                long_enough = len(plain) >= _ONE_EDIT_MIN_LENGTH <= len(form)
+                swapped = len(plain) == len(form) and sorted(plain) == sorted(form)
+                if long_enough or swapped:
+                    result = (form, "fuzzy", float(fuzz.ratio(plain, form)))
+            out.append(result)
+        return out
+
+    def _can_match(self, word: str) -> bool:
+        """Could this word take part in any match (exact, compound or fuzzy)?"""
+        if word in self._starts or word in self._compound_heads:
+            return True
+        if word in _NEVER_FUZZY:
+            return False
+        return self._resolve_unknown(word) is not None
 
     def _is_word(self, token: str) -> bool:
         vocab = self._vocabulary
@@ -334,12 +379,24 @@ class Scanner:
             return cached
         tokens = tokenize(segment)
         texts = [t.text for t in tokens]
+        live = self._live
+        for word in texts:
+            flag = live.get(word)
+            if flag is None:
+                flag = live[word] = self._can_match(word)
+            if flag:
+                break
+        else:  # no word can start a match: the common case, decided once per distinct word
+            result: tuple[tuple[Token, ...], tuple[_Hit, ...]] = (tokens, ())
+            self._segment_cache[segment] = result
+            return result
         n = len(texts)
         hits: list[_Hit] = []
         starts = self._starts
         single = self._single
         unknown = self._unknown_cache
         skip = _NEVER_FUZZY
+        heads = self._compound_heads
         i = 0
         while i < n:
             word = texts[i]
@@ -357,7 +414,7 @@ class Scanner:
                 if found:
                     i += found
                     continue
-            if i + 1 < n:
+            if i + 1 < n and word in heads:
                 # "house-wife", "business men": two words written apart that the lexicon
                 # writes as one ("housewife", "businessmen")
                 joined = single.get(word + texts[i + 1])
@@ -422,6 +479,20 @@ class Scanner:
         )
 
     # -- public ----------------------------------------------------------------------------
+
+    def _prefetch(self, labels: list[str]) -> None:
+        """Resolve every unknown word of these labels in one fuzzy batch."""
+        seen = self._unknown_cache
+        words: set[str] = set()
+        for label in labels:
+            for segment in split_segments(label):
+                if segment in self._segment_cache:
+                    continue
+                for token in tokenize(segment):
+                    word = token.text
+                    if word not in seen and word not in self._starts and word not in _NEVER_FUZZY:
+                        words.add(word)
+        self._resolve_many(sorted(words))
 
     def scan_label(self, label: str) -> list[Finding]:
         """All findings for one label (empty when nothing matched)."""
@@ -515,13 +586,20 @@ class Scanner:
 
     def scan(self, labels: Iterable[str]) -> list[Finding]:
         """Findings for every distinct label, in first-seen order of the labels."""
-        out: list[Finding] = []
-        seen: set[str] = set()
-        for label in labels:
-            if label in seen:
-                continue
-            seen.add(label)
-            out.extend(self.scan_label(label))
+        distinct = list(dict.fromkeys(labels))
+        # The scan allocates many small, long-lived tuples (the caches); Python's cyclic garbage
+        # collector would re-walk all of them again and again. Nothing here makes cycles, so
+        # pause it for the duration (it is restored even on error).
+        was_enabled = gc.isenabled()
+        gc.disable()
+        try:
+            self._prefetch(distinct)
+            out: list[Finding] = []
+            for label in distinct:
+                out.extend(self.scan_label(label))
+        finally:
+            if was_enabled:
+                gc.enable()
         return out
 
 
