@@ -577,7 +577,7 @@ _ITEM_WORDS = (
     "caption",
     "record",
 )
-_TEXT_NAMES = ("text", "caption", "description", "sentence", "transcript")
+_TEXT_NAMES = ("text", "caption", "description", "sentence")
 _PREVIEW_NAMES = (
     "preview",
     "image_file",

@@ -131,9 +131,6 @@ class Lexicon:
     warnings: tuple[Problem, ...] = ()
     content_hash: str = field(default="")
 
-    def term_count(self) -> int:
-        return len(self.terms)
-
 
 def builtin_files() -> list[Path]:
     """The shipped base lexicon files, in the order they are applied."""

@@ -19,6 +19,19 @@ SUBJECTS: tuple[Subjects, ...] = ("people", "mixed", "none")
 
 MatchKind = Literal["exact", "variant", "fuzzy"]
 
+#: The category ids the shipped lexicon set always defines; the rest of labelreview relies on them.
+BASE_CATEGORIES: tuple[str, ...] = (
+    "character_judgement",
+    "appearance_judgement",
+    "occupation_from_appearance",
+    "gendered_term",
+    "demographic_inference",
+    "health_inference",
+    "socioeconomic_judgement",
+    "criminality_inference",
+    "slur_or_derogatory",
+)
+
 ANNOTATION_COLUMNS: tuple[str, str, str] = ("item", "annotator", "label")
 
 

@@ -11,7 +11,7 @@ import csv
 import io
 import json
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import pandas as pd
@@ -62,10 +62,6 @@ class ScanResult:
     subjects: str
     lexicon_hash: str
     labels_scanned: int
-    notes: list[str] = field(default_factory=list)
-
-    def flagged_labels(self) -> list[str]:
-        return sorted({f.label for f in self.findings})
 
     def rows(self) -> list[dict[str, Any]]:
         """One dict per finding, most severe first, then by label."""

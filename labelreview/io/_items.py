@@ -27,7 +27,7 @@ from labelreview.io._common import as_text, check_encoding, read_table
 
 ITEM_ROLES: tuple[str, ...] = ("item", "text", "preview")
 OPTIONAL_CANDIDATES: dict[str, tuple[str, ...]] = {
-    "text": ("text", "caption", "description", "sentence", "utterance", "transcript"),
+    "text": ("text", "caption", "description", "sentence", "utterance"),
     "preview": (
         "preview",
         "image_file",

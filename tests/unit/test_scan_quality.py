@@ -34,22 +34,14 @@ from pathlib import Path
 
 import pytest
 
+from labelreview.model import BASE_CATEGORIES, SUBJECTS
+
 EVAL_PATH = Path(__file__).resolve().parents[1] / "data" / "scan_eval.csv"
 MIN_PRECISION = 0.9  # from the issue, not from a standard
 MIN_RECALL = 0.9  # from the issue, not from a standard
 MIN_CATEGORY_AGREEMENT = 0.85  # this test's own choice
-VALID_SUBJECTS = {"people", "mixed", "none"}
-VALID_CATEGORIES = {
-    "character_judgement",
-    "appearance_judgement",
-    "occupation_from_appearance",
-    "gendered_term",
-    "demographic_inference",
-    "health_inference",
-    "socioeconomic_judgement",
-    "criminality_inference",
-    "slur_or_derogatory",
-}
+VALID_SUBJECTS = set(SUBJECTS)
+VALID_CATEGORIES = set(BASE_CATEGORIES)
 
 
 @dataclass(frozen=True)
