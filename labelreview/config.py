@@ -34,7 +34,7 @@ from labelreview.io._annotations import (
 )
 from labelreview.io._common import TABLE_EXTENSIONS, check_encoding, json_kind
 from labelreview.io._taxonomy import TAXONOMY_FORMATS
-from labelreview.model import SUBJECTS, Subjects
+from labelreview.model import SEVERITIES, SUBJECTS, Severity, Subjects
 
 CONFIG_NAME = "labelreview.yaml"
 STARTER_FALLBACK_NAME = "labelreview.new.yaml"
@@ -107,6 +107,54 @@ class ScanConfig:
     """Tokens shorter than this are never fuzzy-matched."""
 
 
+AGREEMENT_LEVELS: tuple[str, ...] = ("nominal", "ordinal", "interval", "ratio")
+LOG_NAME = "labelreview-log.jsonl"
+
+
+@dataclass(frozen=True)
+class AgreementConfig:
+    """The ``agreement:`` section: defaults for ``labelreview agreement`` and its bands."""
+
+    level: str = "nominal"
+    """Measurement level of the labels: nominal, ordinal, interval or ratio."""
+    reliable: float = 0.800
+    """Alpha at or above this reads "reliable" (Krippendorff 2004, Content Analysis, 2nd ed.)."""
+    tentative: float = 0.667
+    """Alpha at or above this (and below ``reliable``) reads "tentative"; below, "unreliable"."""
+    min_items: int = 10
+    """A per-label alpha needs at least this many items carrying the label."""
+    min_pair_items: int = 10
+    """Cohen's kappa for an annotator pair needs at least this many shared items."""
+    bootstrap: int = 1000
+    """Bootstrap draws for alpha's confidence interval (0: no interval)."""
+    seed: int = 0
+    """Seed of the bootstrap, so the interval is reproducible."""
+
+
+@dataclass(frozen=True)
+class DecisionsConfig:
+    """The ``decisions:`` section: the decision log and the rules decisions must follow."""
+
+    log: Path | None = None
+    """The decision log; None means ``labelreview-log.jsonl`` in the dataset folder."""
+    min_reason_length: int = 10
+    """Shortest reason accepted for a decision, in characters (after trimming)."""
+    fail_on: Severity = "medium"
+    """The gate level: unresolved flags at or above it block ``apply``, ``signoff``, ``check``."""
+    retire_fallbacks: dict[str, str] = field(default_factory=dict)
+    """Label -> the label its annotations move to when it is retired without a fallback."""
+    four_eyes: bool = False
+    """Refuse a sign-off by anyone who made a high-severity decision themselves."""
+
+
+@dataclass(frozen=True)
+class CompareConfig:
+    """The ``compare:`` section."""
+
+    agreement_drop: float = 0.10
+    """A label whose per-label alpha fell by more than this between versions needs a look."""
+
+
 @dataclass(frozen=True)
 class DatasetConfig:
     """A dataset folder's settings, validated; paths are joined to the folder."""
@@ -125,11 +173,19 @@ class DatasetConfig:
     items: ItemsConfig | None = None
     lexicons: LexiconsConfig = field(default_factory=LexiconsConfig)
     scan: ScanConfig = field(default_factory=ScanConfig)
+    agreement: AgreementConfig = field(default_factory=AgreementConfig)
+    decisions: DecisionsConfig = field(default_factory=DecisionsConfig)
+    compare: CompareConfig = field(default_factory=CompareConfig)
     curator: str | None = None
     notes: tuple[str, ...] = ()
     """What detection found or could not decide, in plain sentences."""
     lines: dict[str, int] = field(default_factory=dict, compare=False, repr=False)
     """Dotted key (``annotations.path``) -> its line in ``source``, for later messages."""
+
+    @property
+    def log_path(self) -> Path:
+        """Where the decision log lives (configured, else ``labelreview-log.jsonl`` here)."""
+        return self.decisions.log if self.decisions.log is not None else self.root / LOG_NAME
 
     def line_of(self, key: str) -> int | None:
         """The line of a dotted key in ``labelreview.yaml``, if it was written there."""
@@ -148,6 +204,9 @@ _TOP_KEYS = (
     "items",
     "lexicons",
     "scan",
+    "agreement",
+    "decisions",
+    "compare",
     "curator",
 )
 _ANNOTATION_KEYS = (
@@ -164,6 +223,17 @@ _ITEM_KEYS = ("path", "columns", "attributes", "encoding")
 _ATTRIBUTE_KEYS = ("column", "consented", "self_reported")
 _LEXICON_KEYS = ("base", "layers")
 _SCAN_KEYS = ("fuzzy_threshold", "fuzzy_min_length")
+_AGREEMENT_KEYS = (
+    "level",
+    "reliable",
+    "tentative",
+    "min_items",
+    "min_pair_items",
+    "bootstrap",
+    "seed",
+)
+_DECISION_KEYS = ("log", "min_reason_length", "fail_on", "retire_fallbacks", "four_eyes")
+_COMPARE_KEYS = ("agreement_drop",)
 _NULL = "tag:yaml.org,2002:null"
 
 
@@ -390,6 +460,18 @@ def _parse(path: Path, root: Path, text: str) -> DatasetConfig:
             )
         scan = ScanConfig(fuzzy_threshold=threshold, fuzzy_min_length=min_length)
 
+    agreement = _agreement(reader, top["agreement"]) if "agreement" in top else AgreementConfig()
+    decisions = _decisions(reader, top["decisions"]) if "decisions" in top else DecisionsConfig()
+    compare = CompareConfig()
+    if "compare" in top and not reader.is_null(top["compare"]):
+        section = reader.mapping(top["compare"], "compare", _COMPARE_KEYS)
+        if "agreement_drop" in section:
+            compare = CompareConfig(
+                agreement_drop=reader.number(
+                    section["agreement_drop"], "compare.agreement_drop", 0, 2, integer=False
+                )
+            )
+
     config = DatasetConfig(
         root=root,
         source=path,
@@ -401,6 +483,9 @@ def _parse(path: Path, root: Path, text: str) -> DatasetConfig:
         items=items,
         lexicons=lexicons,
         scan=scan,
+        agreement=agreement,
+        decisions=decisions,
+        compare=compare,
         curator=curator,
         lines=dict(reader.lines),
     )
@@ -424,6 +509,69 @@ def _parse(path: Path, root: Path, text: str) -> DatasetConfig:
             )
         config = replace(config, annotations=annotations, notes=tuple(notes))
     return config
+
+
+def _agreement(reader: _Reader, node: yaml.Node) -> AgreementConfig:
+    if reader.is_null(node):
+        return AgreementConfig()
+    section = reader.mapping(node, "agreement", _AGREEMENT_KEYS)
+    defaults = AgreementConfig()
+    values: dict[str, Any] = {}
+    if "level" in section:
+        values["level"] = reader.choice(section["level"], "agreement.level", AGREEMENT_LEVELS)
+    for key in ("reliable", "tentative"):
+        if key in section:
+            values[key] = reader.number(section[key], f"agreement.{key}", -1, 1, integer=False)
+    for key, low in (("min_items", 1), ("min_pair_items", 1), ("bootstrap", 0), ("seed", 0)):
+        if key in section:
+            values[key] = int(reader.number(section[key], f"agreement.{key}", low, None, True))
+    result = replace(defaults, **values)
+    if result.tentative > result.reliable:
+        where = section.get("tentative") or section.get("reliable") or node
+        raise reader.error(
+            where,
+            f"'agreement.tentative' ({result.tentative:g}) must not be above "
+            f"'agreement.reliable' ({result.reliable:g})",
+        )
+    return result
+
+
+def _decisions(reader: _Reader, node: yaml.Node) -> DecisionsConfig:
+    if reader.is_null(node):
+        return DecisionsConfig()
+    section = reader.mapping(node, "decisions", _DECISION_KEYS)
+    values: dict[str, Any] = {}
+    if "log" in section:
+        values["log"] = reader.file(section["log"], "decisions.log")
+    if "min_reason_length" in section:
+        values["min_reason_length"] = int(
+            reader.number(
+                section["min_reason_length"], "decisions.min_reason_length", 1, None, True
+            )
+        )
+    if "fail_on" in section:
+        values["fail_on"] = reader.choice(section["fail_on"], "decisions.fail_on", SEVERITIES)
+    if "four_eyes" in section:
+        values["four_eyes"] = reader.flag(section["four_eyes"], "decisions.four_eyes")
+    if "retire_fallbacks" in section and not reader.is_null(section["retire_fallbacks"]):
+        mapping = section["retire_fallbacks"]
+        if not isinstance(mapping, yaml.MappingNode):
+            raise reader.error(
+                mapping, "'decisions.retire_fallbacks' must map labels to fallback labels"
+            )
+        fallbacks: dict[str, str] = {}
+        for key_node, value_node in mapping.value:
+            label = str(reader.text(key_node, "decisions.retire_fallbacks key"))
+            if label in fallbacks:
+                raise reader.error(
+                    key_node, f"label '{label}' appears twice in 'decisions.retire_fallbacks'"
+                )
+            target = str(reader.text(value_node, f"decisions.retire_fallbacks.{label}"))
+            if target == label:
+                raise reader.error(value_node, f"label '{label}' cannot fall back to itself")
+            fallbacks[label] = target
+        values["retire_fallbacks"] = fallbacks
+    return replace(DecisionsConfig(), **values)
 
 
 def _annotations(reader: _Reader, node: yaml.Node) -> AnnotationsConfig:

@@ -12,11 +12,14 @@ import io
 import json
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 import pandas as pd
 
-from labelreview.lexicon import Lexicon
+from labelreview.dataset import Dataset
+from labelreview.errors import UsageError
+from labelreview.lexicon import Lexicon, load_lexicon
 from labelreview.model import SEVERITY_RANK, Finding
 from labelreview.scan import Scanner
 
@@ -124,7 +127,63 @@ def scan_usage(
     )
 
 
-def _neutralise(value: Any) -> Any:
+@dataclass
+class DatasetScan:
+    """A loaded dataset, the lexicon set it was scanned with, and what the scan found."""
+
+    dataset: Dataset
+    lexicon: Lexicon
+    result: ScanResult
+    notes: list[str]
+    """Things the user should hear about (subjects defaulted, lexicon warnings)."""
+
+
+def scan_dataset(
+    dataset: Dataset,
+    *,
+    subjects: str | None = None,
+    extra_layers: Sequence[Path] = (),
+) -> DatasetScan:
+    """Load the dataset's lexicon layers and scan every label it uses or lists.
+
+    Args:
+        dataset: A loaded dataset folder.
+        subjects: Overrides the config's ``subjects``; when both are unset, ``mixed`` is used
+            and a note says so.
+        extra_layers: Lexicon layer files applied after the config's layers.
+
+    Raises:
+        UsageError: The dataset has no labels at all.
+        LexiconError: A lexicon layer is broken.
+    """
+    notes: list[str] = []
+    config = dataset.config
+    chosen = subjects or config.subjects
+    if chosen is None:
+        chosen = "mixed"
+        notes.append(
+            "'subjects' is not set; scanning as 'mixed' (people-only terms fire). Set it in "
+            "labelreview.yaml or pass --subjects."
+        )
+    lexicon = load_lexicon([*config.lexicons.layers, *extra_layers], base=config.lexicons.base)
+    notes.extend(f"warning: {problem}" for problem in lexicon.warnings)
+    usage = label_usage(dataset.annotations, [t.name for t in dataset.taxonomy])
+    if not usage:
+        raise UsageError(
+            f"no labels found in {dataset.root}",
+            hint="Point labelreview.yaml (or --annotations / --taxonomy) at your label files.",
+        )
+    result = scan_usage(
+        usage,
+        lexicon,
+        chosen,
+        fuzzy_threshold=config.scan.fuzzy_threshold,
+        fuzzy_min_length=config.scan.fuzzy_min_length,
+    )
+    return DatasetScan(dataset=dataset, lexicon=lexicon, result=result, notes=notes)
+
+
+def neutralise_cell(value: Any) -> Any:
     """Keep spreadsheet programs from running dataset text as a formula (OWASP CSV injection)."""
     if isinstance(value, str) and value[:1] in ("=", "+", "-", "@", "\t", "\r"):
         return "'" + value
@@ -141,7 +200,7 @@ def findings_csv(result: ScanResult) -> str:
     for row in result.rows():
         row = dict(row)
         row["suggestions"] = "; ".join(row["suggestions"])
-        writer.writerow({k: _neutralise(v) for k, v in row.items()})
+        writer.writerow({k: neutralise_cell(v) for k, v in row.items()})
     return buf.getvalue()
 
 

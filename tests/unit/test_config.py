@@ -98,7 +98,8 @@ def test_dataclasses_are_frozen(tmp_path: Path) -> None:
         (
             "version: 1\nannotation:\n  path: a.csv\n",
             r"labelreview\.yaml line 2, column 1: unknown key 'annotation'; known keys here: "
-            r"version, name, subjects, annotations, taxonomy, items, lexicons, scan, curator\. "
+            r"version, name, subjects, annotations, taxonomy, items, lexicons, scan, agreement, decisions, "
+            r"compare, curator\. "
             r"Did you mean 'annotations'\?",
         ),
         (
@@ -311,3 +312,59 @@ def test_starter_config_lists_ambiguous_columns(tmp_path: Path) -> None:
     text = write_starter_config(tmp_path).read_text()
     assert "# item: ?" in text and "several could be it: image_id, id" in text
     load_config(tmp_path)  # still valid YAML in our schema
+
+
+GOVERNANCE = """\
+version: 1
+agreement:
+  level: ordinal
+  reliable: 0.75
+  tentative: 0.6
+  min_items: 5
+  bootstrap: 0
+decisions:
+  log: audit/decisions.jsonl
+  min_reason_length: 20
+  fail_on: high
+  four_eyes: true
+  retire_fallbacks:
+    beauty queen: person
+compare:
+  agreement_drop: 0.05
+"""
+
+
+def test_governance_sections(tmp_path: Path) -> None:
+    config = load_config(write(tmp_path, GOVERNANCE).parent)
+    assert config.agreement.level == "ordinal"
+    assert (config.agreement.reliable, config.agreement.tentative) == (0.75, 0.6)
+    assert config.agreement.min_items == 5 and config.agreement.bootstrap == 0
+    assert config.agreement.min_pair_items == 10  # default kept
+    assert config.log_path == tmp_path / "audit" / "decisions.jsonl"
+    assert config.decisions.min_reason_length == 20
+    assert config.decisions.fail_on == "high" and config.decisions.four_eyes
+    assert config.decisions.retire_fallbacks == {"beauty queen": "person"}
+    assert config.compare.agreement_drop == 0.05
+
+
+def test_governance_defaults(tmp_path: Path) -> None:
+    config = load_config(write(tmp_path, "version: 1\n").parent)
+    assert config.log_path == tmp_path / "labelreview-log.jsonl"
+    assert config.decisions.fail_on == "medium"
+    assert (config.agreement.reliable, config.agreement.tentative) == (0.8, 0.667)
+
+
+@pytest.mark.parametrize(
+    ("text", "pattern"),
+    [
+        ("agreement:\n  level: fuzzy\n", r"line 3, column 10: 'agreement.level' must be one of"),
+        ("agreement:\n  reliable: 0.5\n", r"'agreement.tentative' \(0.667\) must not be above"),
+        ("decisions:\n  fail_on: severe\n", r"line 3, column 12: 'decisions.fail_on' must be"),
+        ("decisions:\n  retire_fallbacks:\n    a: a\n", r"line 4, column 8: .*fall back to itself"),
+        ("decisions:\n  min_reason_length: 0\n", r"must be at least 1"),
+        ("compare:\n  drop: 1\n", r"unknown key 'compare.drop'"),
+    ],
+)
+def test_governance_errors(tmp_path: Path, text: str, pattern: str) -> None:
+    with pytest.raises(ConfigError, match=pattern):
+        load_config(write(tmp_path, "version: 1\n" + text).parent)
