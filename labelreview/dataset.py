@@ -8,6 +8,7 @@ and what was dropped. Nothing here writes to the folder.
 
 from __future__ import annotations
 
+import hashlib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
@@ -64,6 +65,57 @@ class Dataset:
             },
             columns=list(LABEL_COLUMNS),
         )
+
+
+@dataclass(frozen=True)
+class Fingerprint:
+    """SHA-256 digests of a dataset's input files and one digest over all of them."""
+
+    digest: str
+    """``sha256:<hex>`` over the sorted (role, file name, file digest) lines."""
+    files: dict[str, str]
+    """Role (config, annotations, taxonomy, items) -> ``sha256:<hex>`` of that file."""
+    names: dict[str, str] = field(default_factory=dict)
+    """Role -> the file's path as given."""
+
+    def to_dict(self) -> dict[str, object]:
+        return {"digest": self.digest, "files": dict(self.files), "names": dict(self.names)}
+
+
+def file_digest(path: Path) -> str:
+    """``sha256:<hex>`` of a file's bytes, read in 1 MiB blocks."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return f"sha256:{digest.hexdigest()}"
+
+
+def dataset_fingerprint(dataset: Dataset) -> Fingerprint:
+    """Fingerprint the files a dataset was read from (not the decision log, not outputs).
+
+    Any change to the annotations, taxonomy, item table or config changes the digest, which
+    is how decisions and sign-offs notice that the data moved under them.
+    """
+    config = dataset.config
+    paths: dict[str, Path] = {}
+    if config.source is not None and config.source.is_file():
+        paths["config"] = config.source
+    if config.annotations is not None and config.annotations.path is not None:
+        paths["annotations"] = config.annotations.path
+    if config.taxonomy is not None:
+        paths["taxonomy"] = config.taxonomy.path
+    if config.items is not None:
+        paths["items"] = config.items.path
+    files = {role: file_digest(path) for role, path in paths.items() if path.is_file()}
+    lines = "".join(
+        f"{role}\t{paths[role].name}\t{files[role]}\n" for role in sorted(files)
+    ).encode("utf-8")
+    return Fingerprint(
+        digest=f"sha256:{hashlib.sha256(lines).hexdigest()}",
+        files=files,
+        names={role: str(paths[role]) for role in files},
+    )
 
 
 def _must_exist(config: DatasetConfig, path: Path, key: str) -> None:

@@ -70,3 +70,15 @@ class LexiconError(LabelReviewError):
 
 class UsageError(LabelReviewError):
     """A parameter has a value outside the allowed ones."""
+
+
+class LogError(LabelReviewError):
+    """The decision log cannot be read, does not verify, or has a torn last line."""
+
+
+class LogLockedError(LogError):
+    """Another process holds the decision log's lock."""
+
+
+class DecisionError(LabelReviewError):
+    """A decision was refused: empty or short reason, unknown label, bad rename or fallback."""

@@ -96,3 +96,41 @@ class LoadReport:
     column_map: dict[str, str] = field(default_factory=dict)
     """Our column name -> the file's column name."""
     notes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Flag:
+    """One label that needs a human look, with every reason gathered in one place.
+
+    Built from a scan's findings (and, where they apply, data signals); it is what the review
+    queue lists, what the gate counts, and what a decision snapshots into the log.
+    """
+
+    label: str
+    severity: Severity
+    """The highest severity among the label's reasons."""
+    categories: tuple[str, ...]
+    terms: tuple[str, ...]
+    reasons: tuple[str, ...]
+    """Plain sentences, one per reason."""
+    suggestions: tuple[str, ...] = ()
+    annotations: int = 0
+    """Annotation rows carrying the label."""
+    items: int = 0
+    """Distinct items carrying the label."""
+    signals: dict[str, Any] = field(default_factory=dict)
+    """Data signals by name (per-label agreement and the like), JSON-ready values."""
+
+    def to_dict(self) -> dict[str, Any]:
+        """A JSON-ready dict (lists instead of tuples)."""
+        return {
+            "label": self.label,
+            "severity": self.severity,
+            "categories": list(self.categories),
+            "terms": list(self.terms),
+            "reasons": list(self.reasons),
+            "suggestions": list(self.suggestions),
+            "annotations": self.annotations,
+            "items": self.items,
+            "signals": dict(self.signals),
+        }

@@ -20,7 +20,7 @@ import pandas as pd
 from labelreview.dataset import Dataset
 from labelreview.errors import UsageError
 from labelreview.lexicon import Lexicon, load_lexicon
-from labelreview.model import SEVERITY_RANK, Finding
+from labelreview.model import SEVERITY_RANK, Finding, Flag
 from labelreview.scan import Scanner
 
 CAUTIONS: tuple[str, ...] = (
@@ -76,6 +76,31 @@ class ScanResult:
             row["items"] = use.items
             out.append(row)
         return out
+
+
+def flags_from_scan(result: ScanResult) -> list[Flag]:
+    """One :class:`Flag` per flagged label, most severe first, then most used, then by name."""
+    by_label: dict[str, list[Finding]] = {}
+    for finding in result.findings:
+        by_label.setdefault(finding.label, []).append(finding)
+    flags = []
+    for label, found in by_label.items():
+        found = sorted_findings(found)
+        use = result.usage.get(label, LabelUse())
+        flags.append(
+            Flag(
+                label=label,
+                severity=found[0].severity,
+                categories=tuple(dict.fromkeys(f.category for f in found)),
+                terms=tuple(dict.fromkeys(f.term for f in found)),
+                reasons=tuple(dict.fromkeys(f.reason for f in found)),
+                suggestions=tuple(dict.fromkeys(s for f in found for s in f.suggestions)),
+                annotations=use.annotations,
+                items=use.items,
+            )
+        )
+    flags.sort(key=lambda f: (-SEVERITY_RANK[f.severity], -f.annotations, f.label.casefold()))
+    return flags
 
 
 def sorted_findings(findings: Sequence[Finding]) -> list[Finding]:
