@@ -28,11 +28,13 @@ def main() -> None:
 
 
 def _register() -> None:
+    from labelreview.cli.decide import decide
     from labelreview.cli.lexicon import lexicon
+    from labelreview.cli.log import log
     from labelreview.cli.scan import scan
     from labelreview.cli.setup import demo, init
 
-    for command in (scan, lexicon, init, demo):
+    for command in (scan, lexicon, init, demo, decide, log):
         cli.add_command(command)
 
 
