@@ -355,7 +355,7 @@ def read_log(path: Path) -> tuple[Entry, ...]:
     verification = verify_log(path)
     if verification.problem is not None:
         raise LogError(
-            verification.problem.message,
+            f"the decision log does not verify: {verification.problem.message}",
             hint="Run 'labelreview log verify' for details; the log must be restored from a copy.",
             source=str(path),
             line=verification.problem.line,

@@ -50,7 +50,7 @@ class LabelReviewError(Exception):
         where = self.where()
         text = f"{where}: {self.message}" if where else self.message
         if self.hint:
-            if not text.endswith((".", "!", "?", ":", ")")):
+            if not text.endswith((".", "!", "?", ":")):
                 text += "."
             text = f"{text} {self.hint}"
         return text
