@@ -60,7 +60,7 @@ def test_latin1_file_without_encoding_names_byte_line_and_column() -> None:
     with pytest.raises(
         LoadError,
         match=r"^.*latin1\.csv line 3, column 10: the file is not "
-        r"valid UTF-8 \(byte 0xe9 at line 3, column 10\) Pass --encoding "
+        r"valid UTF-8 \(byte 0xe9 at line 3, column 10\)\. Pass --encoding "
         r"latin-1 \(or the file's encoding\)",
     ) as info:
         load_annotations(DATA / "latin1.csv")
