@@ -94,6 +94,7 @@ class ReviewSession:
     _state: LogState | None = field(default=None, init=False, repr=False)
     _writer: LogWriter | None = field(default=None, init=False, repr=False)
     _fingerprint: Fingerprint | None = field(default=None, init=False, repr=False)
+    _stamp: tuple[int, int] | None = field(default=None, init=False, repr=False)
 
     def __post_init__(self) -> None:
         if not self.flags:
@@ -175,7 +176,15 @@ class ReviewSession:
             if self._state is None or len(self._state.entries) != len(self._writer.entries):
                 self._state = fold(self._writer.entries)
             return self._state
-        return self.log.state()
+        try:
+            stat = self.log.path.stat()
+            stamp: tuple[int, int] | None = (stat.st_size, stat.st_mtime_ns)
+        except FileNotFoundError:
+            stamp = None
+        if self._state is None or stamp is None or stamp != self._stamp:
+            self._state = self.log.state()
+            self._stamp = stamp
+        return self._state
 
     def status(self, label: str) -> str:
         return self.state().status(label)
