@@ -36,6 +36,9 @@ def _register() -> None:
 
     for command in (scan, lexicon, init, demo, decide, log):
         cli.add_command(command)
+    from labelreview.cli.agreement import agreement
+
+    cli.add_command(agreement)
 
 
 _register()

@@ -1,0 +1,497 @@
+"""Krippendorff's alpha by the coincidence-matrix method, vectorised over items.
+
+Everything here works on the integer codes of :mod:`labelreview.agreement._coding`: per-item
+value counts come from one sort of ``item * n_values + value``, and the coincidence matrix, the
+per-item observed disagreement (which the bootstrap resamples) and the leave-one-annotator-out
+matrices come from pairs of value groups within items, generated in bounded chunks. No dense
+items x labels matrix is built and no Python loop runs over items.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from labelreview.agreement._coding import Coded
+
+_PAIR_BUDGET = 4_000_000
+"""Largest number of value-group pairs generated at once (bounds memory)."""
+_BLOCK_BUDGET = 2_000_000
+"""Largest block of the values x values difference table held at once."""
+
+
+# -- difference functions ---------------------------------------------------------------------
+
+
+class Metric:
+    """A difference function delta^2 over value codes, and the expected-disagreement sum."""
+
+    name = "nominal"
+
+    def pairs(self, c: np.ndarray, k: np.ndarray) -> np.ndarray:
+        """delta^2 for value codes ``c`` and ``k`` (broadcast together)."""
+        return (np.asarray(c) != np.asarray(k)).astype(np.float64)
+
+    def block(self, rows: np.ndarray, n_values: int) -> np.ndarray:
+        """delta^2 for ``rows`` x every value code, as a dense block."""
+        return self.pairs(rows[:, None], np.arange(n_values)[None, :])
+
+    def expected_sum(self, marginals: np.ndarray) -> np.ndarray:
+        """sum over c, k of n_c n_k delta^2_ck, for marginals of shape (V,) or (draws, V)."""
+        marg = np.atleast_2d(np.asarray(marginals, dtype=np.float64))
+        n_values = marg.shape[1]
+        total = np.zeros(marg.shape[0])
+        step = max(1, _BLOCK_BUDGET // max(n_values, 1))
+        for start in range(0, n_values, step):
+            rows = np.arange(start, min(n_values, start + step))
+            delta = self.block(rows, n_values)
+            total += ((marg[:, rows] @ delta) * marg).sum(axis=1)
+        return total if np.ndim(marginals) == 2 else total[0]
+
+
+class NominalMetric(Metric):
+    """delta^2 = 0 if c == k else 1."""
+
+    def expected_sum(self, marginals: np.ndarray) -> np.ndarray:
+        marg = np.asarray(marginals, dtype=np.float64)
+        n = marg.sum(axis=-1)
+        return n * n - (marg * marg).sum(axis=-1)
+
+
+class IntervalMetric(Metric):
+    """delta^2 = (c - k)^2 on the values' numbers."""
+
+    name = "interval"
+
+    def __init__(self, numbers: np.ndarray) -> None:
+        self.x = np.asarray(numbers, dtype=np.float64)
+
+    def pairs(self, c: np.ndarray, k: np.ndarray) -> np.ndarray:
+        return (self.x[c] - self.x[k]) ** 2
+
+    def expected_sum(self, marginals: np.ndarray) -> np.ndarray:
+        marg = np.asarray(marginals, dtype=np.float64)
+        n = marg.sum(axis=-1)
+        s1 = marg @ self.x
+        s2 = marg @ (self.x * self.x)
+        return 2.0 * (n * s2 - s1 * s1)
+
+
+class RatioMetric(IntervalMetric):
+    """delta^2 = ((c - k) / (c + k))^2; 0 when both are 0."""
+
+    name = "ratio"
+
+    def pairs(self, c: np.ndarray, k: np.ndarray) -> np.ndarray:
+        xc, xk = self.x[c], self.x[k]
+        total = xc + xk
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = np.where(total == 0, 0.0, (xc - xk) / np.where(total == 0, 1.0, total))
+        return out * out
+
+    expected_sum = Metric.expected_sum
+
+
+class OrdinalMetric(Metric):
+    """delta^2 = (sum of n_g for g from c to k, minus (n_c + n_k) / 2)^2 over ranked values."""
+
+    name = "ordinal"
+
+    def __init__(self, marginals: np.ndarray) -> None:
+        self.n = np.asarray(marginals, dtype=np.float64)
+        self.cum = np.cumsum(self.n)
+
+    def pairs(self, c: np.ndarray, k: np.ndarray) -> np.ndarray:
+        lo, hi = np.minimum(c, k), np.maximum(c, k)
+        delta = self.cum[hi] - self.cum[lo] + (self.n[lo] - self.n[hi]) / 2.0
+        return delta * delta
+
+
+class MasiMetric(Metric):
+    """MASI distance (Passonneau 2006) between label sets, used directly as the difference."""
+
+    name = "masi"
+
+    def __init__(self, members: sp.csr_matrix) -> None:
+        self.members = members.tocsr()
+        self.sizes = np.asarray(self.members.sum(axis=1)).ravel()
+
+    def _from_counts(self, inter: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        return masi_from_counts(inter, a, b)
+
+    def pairs(self, c: np.ndarray, k: np.ndarray) -> np.ndarray:
+        c, k = np.broadcast_arrays(np.asarray(c), np.asarray(k))
+        shape = c.shape
+        n_sets = self.members.shape[0]
+        combo, inverse = np.unique(c.ravel() * n_sets + k.ravel(), return_inverse=True)
+        ci, ki = combo // n_sets, combo % n_sets
+        inter = np.asarray(self.members[ci].multiply(self.members[ki]).sum(axis=1)).ravel()
+        out = self._from_counts(inter, self.sizes[ci], self.sizes[ki])
+        return out[inverse.ravel()].reshape(shape)
+
+    def block(self, rows: np.ndarray, n_values: int) -> np.ndarray:
+        inter = (self.members[rows] @ self.members.T).toarray()
+        return self._from_counts(inter, self.sizes[rows][:, None], self.sizes[None, :])
+
+
+def masi_from_counts(inter: np.ndarray, size_a: np.ndarray, size_b: np.ndarray) -> np.ndarray:
+    """MASI distance from |A & B|, |A| and |B| (arrays broadcast together).
+
+    1 - J * M, with J = |A & B| / |A | B| (Jaccard) and M = 1 if A = B, 2/3 if one contains the
+    other, 1/3 if they overlap otherwise, 0 if disjoint (Passonneau 2006). Two empty sets are
+    equal (distance 0).
+    """
+    inter = np.asarray(inter, dtype=np.float64)
+    size_a = np.asarray(size_a, dtype=np.float64)
+    size_b = np.asarray(size_b, dtype=np.float64)
+    union = size_a + size_b - inter
+    equal = (inter == size_a) & (inter == size_b)
+    subset = inter == np.minimum(size_a, size_b)
+    mono = np.where(equal, 1.0, np.where(subset, 2.0 / 3.0, np.where(inter > 0, 1.0 / 3.0, 0.0)))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        jaccard = np.where(union > 0, inter / np.where(union > 0, union, 1.0), 1.0)
+    return 1.0 - jaccard * mono
+
+
+def metric_factory(coded: Coded, level: str) -> Callable[[np.ndarray], Metric]:
+    """A function from pairable-value marginals to the level's difference function."""
+    if coded.multi:
+        assert coded.members is not None
+        masi = MasiMetric(coded.members)
+        return lambda _marg: masi
+    if level == "nominal":
+        nominal = NominalMetric()
+        return lambda _marg: nominal
+    assert coded.numbers is not None
+    if level == "interval":
+        interval = IntervalMetric(coded.numbers)
+        return lambda _marg: interval
+    if level == "ratio":
+        ratio = RatioMetric(coded.numbers)
+        return lambda _marg: ratio
+    return OrdinalMetric
+
+
+# -- value groups and the coincidence matrix --------------------------------------------------
+
+
+@dataclass
+class Groups:
+    """Per item x value: how many annotators gave it; sorted by item then value."""
+
+    unit: np.ndarray
+    value: np.ndarray
+    count: np.ndarray
+    m: np.ndarray
+    """Values per item (indexed by item code)."""
+
+
+def count_pairs(unit: np.ndarray, value: np.ndarray, n_values: int) -> tuple[np.ndarray, ...]:
+    """Distinct (item, value) pairs, sorted, with their counts: one stable sort of the key.
+
+    The key is 32-bit when it fits, and the input is already sorted by item, so the stable sort
+    (radix/timsort) mostly merges presorted runs.
+    """
+    key = unit * n_values + value
+    if n_values and (unit.size == 0 or int(unit[-1]) * n_values + n_values < 2**31):
+        key = key.astype(np.int32)
+    ordered = np.sort(key, kind="stable")
+    if ordered.size == 0:
+        empty = np.zeros(0, dtype=np.int64)
+        return empty, empty, empty
+    starts = np.flatnonzero(np.concatenate(([True], ordered[1:] != ordered[:-1])))
+    count = np.diff(np.append(starts, ordered.size))
+    uniq = ordered[starts].astype(np.int64)
+    return uniq // n_values, uniq % n_values, count
+
+
+def value_groups(unit: np.ndarray, value: np.ndarray, n_values: int, n_units: int) -> Groups:
+    """Count each (item, value) pair; ``unit`` and ``value`` are codes, sorted by ``unit``."""
+    g_unit, g_value, count = count_pairs(unit, value, n_values)
+    m = np.bincount(unit, minlength=n_units)
+    return Groups(unit=g_unit, value=g_value, count=count, m=m)
+
+
+def pairable_marginals(groups: Groups, n_values: int) -> np.ndarray:
+    """n_c: how many pairable values (in items with two or more) are ``c``."""
+    keep = groups.m[groups.unit] >= 2
+    return np.bincount(groups.value[keep], weights=groups.count[keep], minlength=n_values)
+
+
+def _chunks(weights: np.ndarray, budget: int) -> list[tuple[int, int]]:
+    """Split ``range(len(weights))`` into consecutive runs whose weight sum stays near budget."""
+    if weights.size == 0:
+        return []
+    cum = np.cumsum(weights)
+    edges = np.searchsorted(cum, np.arange(budget, cum[-1], budget), side="right")
+    bounds = np.unique(np.concatenate(([0], edges, [weights.size])))
+    return [(int(a), int(b)) for a, b in zip(bounds[:-1], bounds[1:], strict=True) if b > a]
+
+
+def coincidences(
+    groups: Groups, n_values: int, delta: Metric | None = None
+) -> tuple[sp.csr_matrix, np.ndarray | None]:
+    """The coincidence matrix o_ck and, with ``delta``, each item's observed disagreement.
+
+    o_ck = sum over pairable items u of (n_uc n_uk - [c = k] n_uc) / (m_u - 1) (Krippendorff
+    2011). The per-item figure is d_u = sum over c, k of n_uc n_uk delta^2_ck / (m_u - 1), so the
+    observed-disagreement sum is sum over u of d_u.
+
+    Returns:
+        The matrix (values x values, sparse) and d_u per item (zero for unpairable items), or
+        None without ``delta``.
+    """
+    m = groups.m
+    keep = m[groups.unit] >= 2
+    g_unit, g_value = groups.unit[keep], groups.value[keep]
+    g_count = groups.count[keep].astype(np.float64)
+    d_u = np.zeros(m.size) if delta is not None else None
+    if g_unit.size == 0:
+        return sp.csr_matrix((n_values, n_values)), d_u
+    first = np.concatenate(([True], g_unit[1:] != g_unit[:-1]))
+    unit_first = np.flatnonzero(first)
+    per_unit = np.diff(np.append(unit_first, g_unit.size))
+    owner = np.repeat(np.arange(unit_first.size), per_unit)
+    rows: list[np.ndarray] = []
+    cols: list[np.ndarray] = []
+    vals: list[np.ndarray] = []
+    for lo, hi in _chunks(per_unit.astype(np.float64) ** 2, _PAIR_BUDGET):
+        g_lo, g_hi = unit_first[lo], unit_first[hi] if hi < unit_first.size else g_unit.size
+        g = np.arange(g_lo, g_hi)
+        reps = per_unit[owner[g]]
+        left = np.repeat(g, reps)
+        offsets = np.arange(left.size) - np.repeat(np.cumsum(reps) - reps, reps)
+        right = unit_first[owner[left]] + offsets
+        weight = 1.0 / (m[g_unit[left]] - 1.0)
+        same = left == right
+        contrib = (g_count[left] * g_count[right] - np.where(same, g_count[left], 0.0)) * weight
+        rows.append(g_value[left])
+        cols.append(g_value[right])
+        vals.append(contrib)
+        if delta is not None and d_u is not None:
+            d_pair = (
+                g_count[left] * g_count[right] * weight * delta.pairs(g_value[left], g_value[right])
+            )
+            d_u += np.bincount(g_unit[left], weights=d_pair, minlength=m.size)
+    matrix = sp.coo_matrix(
+        (np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+        shape=(n_values, n_values),
+    ).tocsr()
+    matrix.sum_duplicates()
+    return matrix, d_u
+
+
+@dataclass
+class AlphaParts:
+    """Alpha with the sums it came from; ``alpha`` is None when undefined (see ``reason``)."""
+
+    alpha: float | None
+    reason: str | None
+    n_values: float
+    observed: float | None
+    """Observed disagreement D_o."""
+    expected: float | None
+    """Expected disagreement D_e."""
+
+
+def alpha_from_coincidences(
+    matrix: sp.csr_matrix,
+    factory: Callable[[np.ndarray], Metric],
+    value_names: list[str] | None = None,
+) -> AlphaParts:
+    """alpha = 1 - (n - 1) * sum o_ck delta^2_ck / sum n_c n_k delta^2_ck."""
+    marg = np.asarray(matrix.sum(axis=1)).ravel()
+    n = float(marg.sum())
+    if n < 2 - 1e-9:
+        return AlphaParts(
+            None,
+            "no item has two or more annotations, so there is nothing to compare",
+            n,
+            None,
+            None,
+        )
+    metric = factory(marg)
+    coo = matrix.tocoo()
+    observed_sum = float((coo.data * metric.pairs(coo.row, coo.col)).sum())
+    expected_sum = float(metric.expected_sum(marg))
+    observed = observed_sum / n
+    if expected_sum <= 1e-12 * max(n * n, 1.0):
+        used = np.flatnonzero(marg > 0)
+        if used.size == 1 and value_names is not None:
+            why = f"every comparable annotation is {value_names[int(used[0])]!r}"
+        else:
+            why = "the comparable annotations do not vary"
+        return AlphaParts(
+            None, f"{why}, so expected disagreement is zero and alpha is undefined", n, observed, 0
+        )
+    expected = expected_sum / (n * (n - 1.0))
+    alpha = 1.0 - (n - 1.0) * observed_sum / expected_sum
+    return AlphaParts(float(alpha), None, n, observed, expected)
+
+
+# -- per label ----------------------------------------------------------------------------------
+
+
+@dataclass
+class LabelParts:
+    """Per label (arrays indexed by label code), from the one-vs-rest binary alphas."""
+
+    alpha: np.ndarray
+    """NaN where undefined."""
+    n_items: np.ndarray
+    """Pairable items where at least one annotator gave the label."""
+    n_marked: np.ndarray
+    """Pairable values carrying the label (n_c)."""
+    agreeing: np.ndarray
+    """o_cc: the diagonal coincidences."""
+    n_values: float
+    """All pairable values (n)."""
+    overall_nominal: float | None
+    """Single-label data: the nominal alpha from the same pass (None if undefined)."""
+
+
+def label_alphas(coded: Coded) -> LabelParts:
+    """Each label as binary nominal data (given / not given), in one pass over (item, label).
+
+    With n_c the pairable values carrying label c, n all pairable values and o_cc the diagonal
+    coincidence sum over items of n_uc (n_uc - 1) / (m_u - 1), the binary alpha is
+    1 - (n - 1) (n_c - o_cc) / (n_c (n - n_c)); for single-label data this is the one-vs-rest
+    alpha read off the coincidence matrix's diagonal and totals. For multi-label data m_u counts
+    the annotators who labelled the item and n_uc those who gave c.
+    """
+    n_labels = len(coded.label_names)
+    m = np.bincount(coded.unit, minlength=coded.n_units)
+    g_unit, g_label, count = count_pairs(coded.label_unit, coded.label_code, n_labels)
+    m_g = m[g_unit]
+    keep = m_g >= 2
+    g_label, count, m_g = g_label[keep], count[keep].astype(np.float64), m_g[keep]
+    agreeing = np.bincount(g_label, weights=count * (count - 1.0) / (m_g - 1.0), minlength=n_labels)
+    marked = np.bincount(g_label, weights=count, minlength=n_labels)
+    n_items = np.bincount(g_label, minlength=n_labels)
+    n = float(m[m >= 2].sum())
+    with np.errstate(divide="ignore", invalid="ignore"):
+        alpha = 1.0 - (n - 1.0) * (marked - agreeing) / (marked * (n - marked))
+    alpha[(marked <= 0) | (marked >= n)] = np.nan
+    overall = None
+    if not coded.multi and n >= 2:
+        expected = n * n - float((marked * marked).sum())
+        if expected > 0:
+            overall = float(1.0 - (n - 1.0) * (n - float(agreeing.sum())) / expected)
+    return LabelParts(alpha, n_items, marked, agreeing, n, overall)
+
+
+# -- leave one annotator out ------------------------------------------------------------------
+
+
+def _ranges(starts: np.ndarray, stops: np.ndarray) -> np.ndarray:
+    """Concatenated ``arange(start, stop)`` for each pair, without a Python loop."""
+    lengths = stops - starts
+    total = int(lengths.sum())
+    if total == 0:
+        return np.zeros(0, dtype=np.int64)
+    offsets = np.arange(total) - np.repeat(np.cumsum(lengths) - lengths, lengths)
+    return np.repeat(starts, lengths) + offsets
+
+
+def leave_one_out(
+    coded: Coded,
+    matrix: sp.csr_matrix,
+    factory: Callable[[np.ndarray], Metric],
+) -> list[AlphaParts]:
+    """Alpha with each annotator's values removed, one entry per annotator code.
+
+    Only the items an annotator judged change, so each matrix is the full one minus those items'
+    coincidences plus the same items' coincidences without the annotator: the work is the sum of
+    the squared item sizes, not annotators x items.
+    """
+    starts = coded.unit_starts()
+    order = np.argsort(coded.annotator, kind="stable")
+    bounds = np.searchsorted(coded.annotator[order], np.arange(coded.n_annotators + 1))
+    out: list[AlphaParts] = []
+    n_values, n_units = coded.n_values, coded.n_units
+    for a in range(coded.n_annotators):
+        own = order[bounds[a] : bounds[a + 1]]
+        units = np.unique(coded.unit[own])
+        idx = _ranges(starts[units], starts[units + 1])
+        sub_unit, sub_value = coded.unit[idx], coded.value[idx]
+        others = coded.annotator[idx] != a
+        before, _ = coincidences(value_groups(sub_unit, sub_value, n_values, n_units), n_values)
+        after, _ = coincidences(
+            value_groups(sub_unit[others], sub_value[others], n_values, n_units), n_values
+        )
+        reduced = (matrix - before + after).tocsr()
+        reduced.data[np.abs(reduced.data) < 1e-9] = 0.0
+        reduced.eliminate_zeros()
+        out.append(alpha_from_coincidences(reduced, factory, coded.value_names))
+    return out
+
+
+# -- bootstrap ----------------------------------------------------------------------------------
+
+
+@dataclass
+class BootstrapParts:
+    """The bootstrap distribution of alpha over resampled items."""
+
+    alphas: np.ndarray
+    """Defined draws only."""
+    draws: int
+    undefined: int
+
+
+def bootstrap_alpha(
+    groups: Groups,
+    d_u: np.ndarray,
+    metric: Metric,
+    n_values: int,
+    draws: int,
+    seed: int,
+) -> BootstrapParts:
+    """Resample pairable items with replacement and recompute alpha from their contributions.
+
+    Each draw picks as many pairable items as there are, with replacement (numpy's seeded
+    ``default_rng``), and sums each picked item's observed disagreement d_u, its pairable values
+    m_u and its value counts n_uc; expected disagreement is recomputed from the resampled
+    totals. The difference function stays the one from the full data (this matters only for
+    the ordinal level, whose differences depend on the value totals).
+    """
+    rng = np.random.default_rng(seed)
+    pairable = np.flatnonzero(groups.m >= 2)
+    n_units = pairable.size
+    if n_units == 0 or draws <= 0:
+        return BootstrapParts(np.zeros(0), draws, draws)
+    local = np.full(groups.m.size, -1, dtype=np.int64)
+    local[pairable] = np.arange(n_units)
+    keep = groups.m[groups.unit] >= 2
+    counts = sp.csr_matrix(
+        (
+            groups.count[keep].astype(np.float64),
+            (local[groups.unit[keep]], groups.value[keep]),
+        ),
+        shape=(n_units, n_values),
+    )
+    counts_t = counts.T.tocsr()
+    d = d_u[pairable]
+    m = groups.m[pairable].astype(np.float64)
+    per_chunk = max(1, min(draws, 4_000_000 // n_units))
+    alphas: list[np.ndarray] = []
+    done = 0
+    while done < draws:
+        b = min(per_chunk, draws - done)
+        picks = rng.integers(0, n_units, size=(b, n_units))
+        picks += (np.arange(b) * n_units)[:, None]
+        weights = np.bincount(picks.ravel(), minlength=b * n_units).reshape(b, n_units)
+        weights = weights.astype(np.float64)
+        observed = weights @ d
+        n = weights @ m
+        marg = (counts_t @ weights.T).T
+        expected = np.asarray(metric.expected_sum(marg), dtype=np.float64)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            alpha = 1.0 - (n - 1.0) * observed / expected
+        alphas.append(alpha[expected > 1e-12 * n * n])
+        done += b
+    values = np.concatenate(alphas) if alphas else np.zeros(0)
+    return BootstrapParts(values, draws, draws - values.size)
