@@ -39,6 +39,17 @@ def _register() -> None:
     from labelreview.cli.agreement import agreement
 
     cli.add_command(agreement)
+    from labelreview.cli.apply import apply
+    from labelreview.cli.export import export
+
+    cli.add_command(apply)
+    cli.add_command(export)
+    from labelreview.cli.check import check
+    from labelreview.cli.compare import compare
+    from labelreview.cli.signoff import signoff
+
+    for gate_command in (check, signoff, compare):
+        cli.add_command(gate_command)
 
 
 _register()
