@@ -39,6 +39,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
+from labelreview.dataset import input_paths
 from labelreview.decisions import Entry, LogState, rfc3339, utc_now
 from labelreview.errors import DecisionError, LabelReviewError, UsageError
 from labelreview.export import OutputError, csv_text, fsync_dir, tool_version
@@ -1101,15 +1102,7 @@ class ApplyResult:
 
 def _input_paths(session: ReviewSession) -> dict[str, Path]:
     config = session.config
-    paths: dict[str, Path] = {}
-    if config.source is not None:
-        paths["config"] = config.source
-    if config.annotations is not None and config.annotations.path is not None:
-        paths["annotations"] = config.annotations.path
-    if config.taxonomy is not None:
-        paths["taxonomy"] = config.taxonomy.path
-    if config.items is not None:
-        paths["items"] = config.items.path
+    paths = input_paths(config)
     paths["log"] = config.log_path
     for number, layer in enumerate(config.lexicons.layers, start=1):
         paths[f"lexicon layer {number}"] = layer

@@ -91,15 +91,10 @@ def file_digest(path: Path) -> str:
     return f"sha256:{digest.hexdigest()}"
 
 
-def dataset_fingerprint(dataset: Dataset) -> Fingerprint:
-    """Fingerprint the files a dataset was read from (not the decision log, not outputs).
-
-    Any change to the annotations, taxonomy, item table or config changes the digest, which
-    is how decisions and sign-offs notice that the data moved under them.
-    """
-    config = dataset.config
+def input_paths(config: DatasetConfig) -> dict[str, Path]:
+    """Role (config, annotations, taxonomy, items) -> the input file the config names."""
     paths: dict[str, Path] = {}
-    if config.source is not None and config.source.is_file():
+    if config.source is not None:
         paths["config"] = config.source
     if config.annotations is not None and config.annotations.path is not None:
         paths["annotations"] = config.annotations.path
@@ -107,6 +102,16 @@ def dataset_fingerprint(dataset: Dataset) -> Fingerprint:
         paths["taxonomy"] = config.taxonomy.path
     if config.items is not None:
         paths["items"] = config.items.path
+    return paths
+
+
+def dataset_fingerprint(dataset: Dataset) -> Fingerprint:
+    """Fingerprint the files a dataset was read from (not the decision log, not outputs).
+
+    Any change to the annotations, taxonomy, item table or config changes the digest, which
+    is how decisions and sign-offs notice that the data moved under them.
+    """
+    paths = input_paths(dataset.config)
     files = {role: file_digest(path) for role, path in paths.items() if path.is_file()}
     lines = "".join(
         f"{role}\t{paths[role].name}\t{files[role]}\n" for role in sorted(files)
