@@ -15,7 +15,13 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from labelreview.agreement._coding import Coded
+from labelreview.agreement._coding import (
+    NEARBY_LIMIT,
+    Coded,
+    Lookup,
+    narrow_key,
+    run_lengths,
+)
 
 _PAIR_BUDGET = 4_000_000
 """Largest number of value-group pairs generated at once (bounds memory)."""
@@ -353,6 +359,45 @@ class LabelParts:
     """Single-label data: the nominal alpha from the same pass (None if undefined)."""
 
 
+def label_groups(
+    unit: np.ndarray, label: np.ndarray, n_labels: int, sizes: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Distinct (item, label) pairs with their counts, for rows sorted by item.
+
+    Small items (the usual case) need no sort: rows of one item are adjacent, so equal pairs are
+    at most ``longest - 1`` rows apart and one comparison per distance finds them all. Each
+    pair is then reported at its first row, so the pairs come in item order and, for any one
+    label, in the same order as from the sort of :func:`count_pairs`: sums over them are the
+    same to the last bit. Larger items use :func:`count_pairs`. ``sizes``: rows per item, when
+    already known.
+    """
+    if unit.size == 0:
+        return count_pairs(unit, label, n_labels)
+    n_units = int(unit[-1]) + 1
+    longest = int((run_lengths(unit, n_units) if sizes is None else sizes).max())
+    if longest > NEARBY_LIMIT:
+        return count_pairs(unit, label, n_labels)
+    key = narrow_key(unit, n_labels, label, n_units)
+    seen_before = np.zeros(key.size, dtype=bool)
+    later = np.zeros(key.size, dtype=np.int8)
+    for d in range(1, longest):
+        same = key[d:] == key[:-d]
+        seen_before[d:] |= same
+        later[:-d] += same  # rows after this one with the same pair; all of them at a first row
+    del key
+    first = np.flatnonzero(~seen_before)
+    count = later[first].astype(np.int64)
+    count += 1
+    return unit[first], label[first], count
+
+
+def _renumber(per_code: np.ndarray, table: np.ndarray, used: np.ndarray, size: int) -> np.ndarray:
+    """Per-stored-code figures -> per-final-code figures (stored code c becomes table[c])."""
+    out = np.zeros(size, dtype=per_code.dtype)
+    out[table[used]] = per_code[used]
+    return out
+
+
 def label_alphas(coded: Coded) -> LabelParts:
     """Each label as binary nominal data (given / not given), in one pass over (item, label).
 
@@ -363,14 +408,26 @@ def label_alphas(coded: Coded) -> LabelParts:
     the annotators who labelled the item and n_uc those who gave c.
     """
     n_labels = len(coded.label_names)
-    m = np.bincount(coded.unit, minlength=coded.n_units)
-    g_unit, g_label, count = count_pairs(coded.label_unit, coded.label_code, n_labels)
+    m = coded.unit_sizes()
+    # Work on the label codes as stored when they are not renumbered yet, and renumber the
+    # per-label sums at the end: each sum adds the same terms in the same order either way.
+    codes = coded.label_codes
+    table = codes.table if isinstance(codes, Lookup) and codes._final is None else None
+    raw = codes.stored if table is not None else coded.label_code
+    n_bins = table.size if table is not None else n_labels
+    sizes = m if coded.label_unit is coded.unit else None
+    g_unit, g_label, count = label_groups(coded.label_unit, raw, n_bins, sizes)
     m_g = m[g_unit]
     keep = m_g >= 2
     g_label, count, m_g = g_label[keep], count[keep].astype(np.float64), m_g[keep]
-    agreeing = np.bincount(g_label, weights=count * (count - 1.0) / (m_g - 1.0), minlength=n_labels)
-    marked = np.bincount(g_label, weights=count, minlength=n_labels)
-    n_items = np.bincount(g_label, minlength=n_labels)
+    agreeing = np.bincount(g_label, weights=count * (count - 1.0) / (m_g - 1.0), minlength=n_bins)
+    marked = np.bincount(g_label, weights=count, minlength=n_bins)
+    n_items = np.bincount(g_label, minlength=n_bins)
+    if table is not None:
+        used = table >= 0
+        agreeing, marked, n_items = (
+            _renumber(x, table, used, n_labels) for x in (agreeing, marked, n_items)
+        )
     n = float(m[m >= 2].sum())
     with np.errstate(divide="ignore", invalid="ignore"):
         alpha = 1.0 - (n - 1.0) * (marked - agreeing) / (marked * (n - marked))

@@ -4,9 +4,13 @@ Input is either the long annotation frame (``item``, ``annotator``, ``label``; o
 annotator x label) or a reliability matrix (annotators x items, missing values allowed). Output is
 a :class:`Coded` bundle of numpy arrays sorted by item, so the statistics never loop over items.
 
-Speed notes (the agreement benchmark depends on them): item ids are hashed only when the column is
-not already grouped; a file written item by item (the common case) is coded from adjacent
-comparisons. The annotator and label columns are factorised in two threads.
+Speed notes (the agreement benchmark depends on them): a pandas Categorical or an Arrow
+dictionary column is coded from its stored codes and categories, with no string hashing (read a
+large CSV with ``pyarrow.csv`` and dictionary column types to get them). Otherwise item ids are
+hashed only when the column is not already grouped: a file written item by item (the common case)
+is coded from adjacent comparisons, and the annotator and label columns are factorised in
+threads. Either way the codes come out identical, so every figure is the same. Item names are
+kept as they came and converted only on request (nothing in the statistics needs them).
 """
 
 from __future__ import annotations
@@ -27,6 +31,30 @@ SET_SEPARATOR = " | "
 
 
 @dataclass
+class Lookup:
+    """Per-row codes kept as found plus a table: the final code of row ``i`` is
+    ``table[stored[i]]`` (-1 in the table for stored codes that are not in use).
+
+    The final int64 array is built on first use, so a statistic that can work on the stored
+    codes and renumber its few per-code results (the per-label alphas) skips that pass.
+    """
+
+    stored: np.ndarray
+    table: np.ndarray
+    _final: np.ndarray | None = field(default=None, repr=False)
+
+    def final(self) -> np.ndarray:
+        """The final codes (int64), computed once."""
+        if self._final is None:
+            self._final = self.table[self.stored]
+        return self._final
+
+
+def _final(codes: np.ndarray | Lookup) -> np.ndarray:
+    return codes.final() if isinstance(codes, Lookup) else codes
+
+
+@dataclass
 class Coded:
     """Annotations as integer codes; every per-value array is sorted by unit (item)."""
 
@@ -36,10 +64,10 @@ class Coded:
     """Annotator names; code ``i`` is ``annotator_names[i]`` (sorted)."""
     unit: np.ndarray
     """Per value (one item x annotator judgement): its item code."""
-    annotator: np.ndarray
-    """Per value: its annotator code."""
-    value: np.ndarray
-    """Per value: its value code (a label, or a label set for multi-label data)."""
+    annotator_codes: np.ndarray | Lookup
+    """Per value: its annotator code (see :attr:`annotator`)."""
+    value_codes: np.ndarray | Lookup
+    """Per value: its value code (see :attr:`value`)."""
     value_names: list[str]
     """Display names of the value codes (sorted; numeric order for numeric levels)."""
     numbers: np.ndarray | None
@@ -48,13 +76,46 @@ class Coded:
     """True when some annotator gave several labels to one item."""
     label_unit: np.ndarray
     """Per label row (item x annotator x label): its item code (same as ``unit`` when single)."""
-    label_annotator: np.ndarray
-    label_code: np.ndarray
+    label_annotator_codes: np.ndarray | Lookup
+    label_codes: np.ndarray | Lookup
+    """Per label row: its label code (see :attr:`label_code`)."""
     label_names: list[str]
     members: sp.csr_matrix | None = None
     """Multi-label only: value (label set) x label membership, 0/1."""
-    unit_names: np.ndarray | None = None
+    item_name_source: Any = None
+    """Item names as they came (numpy, pandas or Arrow array), indexed by ``item_name_at``."""
+    item_name_at: np.ndarray | None = None
+    """Position in ``item_name_source`` of each item code's name (None: position = code)."""
     notes: list[str] = field(default_factory=list)
+    _sizes: np.ndarray | None = field(default=None, repr=False)
+
+    @property
+    def annotator(self) -> np.ndarray:
+        """Per value: its annotator code (int64)."""
+        return _final(self.annotator_codes)
+
+    @property
+    def value(self) -> np.ndarray:
+        """Per value: its value code (a label, or a label set for multi-label data; int64)."""
+        return _final(self.value_codes)
+
+    @property
+    def label_annotator(self) -> np.ndarray:
+        """Per label row: its annotator code (int64)."""
+        return _final(self.label_annotator_codes)
+
+    @property
+    def label_code(self) -> np.ndarray:
+        """Per label row: its label code (int64)."""
+        return _final(self.label_codes)
+
+    @property
+    def unit_names(self) -> np.ndarray | None:
+        """Item names by item code, as an object array (converted on each call)."""
+        if self.item_name_source is None:
+            return None
+        names = np.asarray(self.item_name_source, dtype=object)
+        return names if self.item_name_at is None else names[self.item_name_at]
 
     @property
     def n_values(self) -> int:
@@ -64,12 +125,67 @@ class Coded:
     def n_annotators(self) -> int:
         return len(self.annotator_names)
 
+    def unit_sizes(self) -> np.ndarray:
+        """m_u: values per unit (indexed by item code); computed once."""
+        if self._sizes is None:
+            self._sizes = run_lengths(self.unit, self.n_units)
+        return self._sizes
+
     def unit_starts(self) -> np.ndarray:
         """Offsets of each unit's values in the per-value arrays (length ``n_units + 1``)."""
-        counts = np.bincount(self.unit, minlength=self.n_units)
         starts = np.zeros(self.n_units + 1, dtype=np.int64)
-        np.cumsum(counts, out=starts[1:])
+        np.cumsum(self.unit_sizes(), out=starts[1:])
         return starts
+
+
+def run_starts(codes: np.ndarray) -> np.ndarray:
+    """Where each run of equal adjacent codes starts (empty for no codes)."""
+    if codes.size == 0:
+        return np.zeros(0, dtype=np.int64)
+    change = np.empty(codes.size, dtype=bool)
+    change[0] = True
+    np.not_equal(codes[1:], codes[:-1], out=change[1:])
+    return np.flatnonzero(change)
+
+
+def run_lengths(unit: np.ndarray, n_units: int) -> np.ndarray:
+    """Values per unit for sorted unit codes; from run starts when every code occurs."""
+    starts = run_starts(unit)
+    if starts.size == n_units and (n_units == 0 or int(unit[-1]) == n_units - 1):
+        return np.diff(starts, append=unit.size)
+    return np.bincount(unit, minlength=n_units)
+
+
+def count_codes(codes: np.ndarray, n_codes: int) -> np.ndarray:
+    """``np.bincount(codes, minlength=n_codes)``; narrow codes in cache-sized slices.
+
+    bincount widens its input to intp first; slices keep that copy small (twice as fast on
+    int8 category codes).
+    """
+    if codes.dtype.itemsize >= 8 or codes.size <= _SLICE:
+        return np.bincount(codes, minlength=n_codes)
+    total = np.zeros(n_codes, dtype=np.int64)
+    for start in range(0, codes.size, _SLICE):
+        part = np.bincount(codes[start : start + _SLICE], minlength=n_codes)
+        if part.size > total.size:
+            part[: total.size] += total
+            total = part
+        else:
+            total[: part.size] += part
+    return total
+
+
+_SLICE = 1 << 16
+
+
+def narrow_key(major: np.ndarray, n_minor: int, minor: np.ndarray, n_major: int) -> np.ndarray:
+    """``major * n_minor + minor`` as int32 when every key fits (half the memory traffic)."""
+    if float(n_major) * max(n_minor, 1) < 2.0**31:
+        key = major.astype(np.int32)
+        key *= np.int32(n_minor)
+        np.add(key, minor, out=key, casting="unsafe")
+        return key
+    return major.astype(np.int64) * n_minor + minor
 
 
 def check_level(level: str) -> str:
@@ -121,8 +237,47 @@ def as_long_frame(data: Any) -> pd.DataFrame:
     )
 
 
+def _arrow(column: pd.Series) -> Any:
+    """The Arrow array behind a pandas column, or None."""
+    return getattr(column.array, "_pa_array", None)
+
+
+def _objects(values: Any) -> np.ndarray:
+    """Names as a numpy object array (from a numpy, pandas or Arrow array)."""
+    to_pylist = getattr(values, "to_pylist", None)
+    if to_pylist is not None:
+        return np.asarray(to_pylist(), dtype=object)
+    return np.asarray(values, dtype=object)
+
+
+def _stored_codes(column: pd.Series) -> tuple[np.ndarray, Any] | None:
+    """The stored codes and categories of a Categorical or Arrow dictionary column, else None.
+
+    Categories are returned as stored, unused ones included; the codes index them. Missing
+    rows are dropped before this is called, so no code is -1.
+    """
+    if isinstance(column.dtype, pd.CategoricalDtype):
+        return np.asarray(column.cat.codes), column.cat.categories
+    pa_array = _arrow(column)
+    if pa_array is None:
+        return None
+    import pyarrow as pa
+
+    if not pa.types.is_dictionary(pa_array.type):
+        return None
+    chunked = pa_array if isinstance(pa_array, pa.ChunkedArray) else pa.chunked_array([pa_array])
+    chunked = chunked.unify_dictionaries()
+    if chunked.num_chunks == 0:
+        return np.zeros(0, dtype=np.int32), pa.array([], type=pa_array.type.value_type)
+    codes = np.concatenate(
+        [c.indices.to_numpy(zero_copy_only=False) for c in chunked.chunks]
+    ).astype(np.int64, copy=False)
+    return codes, chunked.chunk(0).dictionary
+
+
 def _factorize(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
-    pa_array = getattr(column.array, "_pa_array", None)
+    """Codes (any integer dtype) and names of a column, numbered by first appearance."""
+    pa_array = _arrow(column)
     if pa_array is not None and pa_array.null_count == 0:
         import pyarrow as pa
         import pyarrow.compute as pc
@@ -137,44 +292,127 @@ def _factorize(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
         else:
             dictionary = encoded.dictionary
             codes = encoded.indices.to_numpy(zero_copy_only=False)
-        return codes.astype(np.int64), np.asarray(dictionary.to_pylist(), dtype=object)
+        if codes.size == 0:
+            codes = np.zeros(0, dtype=np.int64)
+        return codes, _objects(dictionary)
     codes, uniques = pd.factorize(column, sort=False)
-    return codes.astype(np.int64, copy=False), np.asarray(uniques, dtype=object)
+    return codes, np.asarray(uniques, dtype=object)
 
 
-def _factorize_grouped(column: pd.Series) -> tuple[np.ndarray, np.ndarray, bool]:
-    """Codes for a column whose equal values are usually adjacent (a file written item by item).
+@dataclass
+class _Items:
+    """Item codes numbered by first appearance, and where their names are."""
 
-    Returns the codes, the names, and whether the codes are non-decreasing (grouped). When the
-    run starts are strictly increasing strings they are all distinct, so the run number is the
-    code; otherwise the column is hashed as usual.
+    codes: np.ndarray
+    n_items: int
+    name_source: Any
+    name_at: np.ndarray | None
+    grouped: bool
+    """Each item's rows are adjacent (the codes are then non-decreasing)."""
+    sizes: np.ndarray | None = None
+    """Rows per item, when already known (grouped rows: the run lengths)."""
+
+
+def _runs(starts: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Per row, the number of the run it belongs to (int64); and the run lengths."""
+    lengths = np.diff(starts, append=n)
+    return np.repeat(np.arange(starts.size, dtype=np.int64), lengths), lengths
+
+
+def _items_from_text(column: pd.Series) -> _Items:
+    """Item codes for a text column whose equal values are usually adjacent.
+
+    When the text never decreases from one row to the next (a file written item by item in
+    sorted order), every run of equal values is one whole item and the run number is the code;
+    otherwise the column is hashed as usual.
     """
     n = len(column)
-    pa_array = getattr(column.array, "_pa_array", None)
+    pa_array = _arrow(column)
     if n > 1 and pa_array is not None:
         import pyarrow.compute as pc
 
-        changed = pc.not_equal(pa_array[1:], pa_array[:-1])
-        change = np.asarray(changed.to_numpy(zero_copy_only=False), dtype=bool)
-        starts = np.concatenate(([0], np.flatnonzero(change) + 1))
-        firsts = pa_array.take(starts)
-        # Strictly increasing run starts are all distinct, so each run is one whole item.
-        if len(starts) < 2 or not pc.any(pc.less_equal(firsts[1:], firsts[:-1])).as_py():
-            codes = np.zeros(n, dtype=np.int64)
-            np.cumsum(change, out=codes[1:])
-            return codes, np.asarray(firsts), True
+        if not pc.any(pc.less(pa_array[1:], pa_array[:-1])).as_py():
+            changed = pc.not_equal(pa_array[1:], pa_array[:-1])
+            change = np.asarray(changed.to_numpy(zero_copy_only=False), dtype=bool)
+            starts = np.concatenate(([0], np.flatnonzero(change) + 1))
+            codes, lengths = _runs(starts, n)
+            return _Items(codes, starts.size, pa_array, starts, True, lengths)
     codes, names = _factorize(column)
-    grouped = bool(n < 2 or (np.diff(codes) >= 0).all())
-    return codes, names, grouped
+    grouped = bool(n < 2 or (codes[1:] >= codes[:-1]).all())
+    return _Items(codes.astype(np.int64, copy=False), len(names), names, None, grouped)
 
 
-def _sorted_names(names: np.ndarray, codes: np.ndarray) -> tuple[list[str], np.ndarray]:
-    """Recode so that code order is the sorted order of the names' text."""
+def _items_from_codes(codes: np.ndarray, categories: Any) -> _Items:
+    """Item codes from stored dictionary codes, numbered exactly as :func:`_items_from_text` would.
+
+    Stored codes may follow any category order and skip unused categories; the item codes are
+    renumbered by first appearance, which is what factorising the text gives.
+    """
+    starts = run_starts(codes)
+    run_code = codes[starts]
+    if (
+        run_code.size < 2
+        or bool((run_code[1:] > run_code[:-1]).all())
+        or int(np.bincount(run_code).max()) == 1
+    ):  # every run is a whole item: the run number is the code
+        unit, lengths = _runs(starts, codes.size)
+        return _Items(unit, starts.size, categories, run_code, True, lengths)
+    order = np.argsort(run_code, kind="stable")
+    ordered = run_code[order]
+    firsts = run_starts(ordered)
+    present = ordered[firsts]
+    # order[firsts] is each item's first run (the sort is stable), so this is appearance order.
+    positions = present[np.argsort(order[firsts])]
+    renumber = np.zeros(int(present[-1]) + 1, dtype=np.int64)
+    renumber[positions] = np.arange(positions.size)
+    return _Items(renumber[codes], positions.size, categories, positions, False)
+
+
+@dataclass
+class _Values:
+    """Annotator or label codes as found, their names, and how to renumber them."""
+
+    codes: np.ndarray
+    names: np.ndarray
+    """Names of the codes in use (object array)."""
+    compact: np.ndarray | None
+    """Stored code -> index into ``names`` (None when every stored code is in use)."""
+
+
+def _values_from_text(column: pd.Series) -> _Values:
+    codes, names = _factorize(column)
+    return _Values(codes, names, None)
+
+
+def _values_from_codes(codes: np.ndarray, categories: Any) -> _Values:
+    """Drop unused categories: only the names in use get codes, as with text."""
+    n_categories = len(categories)
+    used = np.flatnonzero(count_codes(codes, n_categories))
+    names = _objects(categories)
+    if used.size == n_categories:
+        return _Values(codes, names, None)
+    compact = np.full(n_categories, -1, dtype=np.int64)
+    compact[used] = np.arange(used.size)
+    return _Values(codes, names[used], compact)
+
+
+def _lookup(values: _Values, rank: np.ndarray) -> Lookup:
+    """The final codes as a :class:`Lookup`: the rank of each name, through the compaction."""
+    if values.compact is None:
+        return Lookup(values.codes, rank)
+    table = np.full(values.compact.size, -1, dtype=np.int64)
+    used = values.compact >= 0
+    table[used] = rank[values.compact[used]]
+    return Lookup(values.codes, table)
+
+
+def _sorted_names(names: np.ndarray) -> tuple[list[str], np.ndarray]:
+    """The names' text in sorted order, and the rank (new code) of each old code."""
     text = [str(x) for x in names]
     order = np.argsort(np.asarray(text, dtype=object), kind="stable")
     rank = np.empty(len(order), dtype=np.int64)
     rank[order] = np.arange(len(order))
-    return [text[i] for i in order], rank[codes]
+    return [text[i] for i in order], rank
 
 
 def _numeric(names: list[str], raw: np.ndarray, level: str) -> np.ndarray:
@@ -195,16 +433,30 @@ def _numeric(names: list[str], raw: np.ndarray, level: str) -> np.ndarray:
     return numbers
 
 
+def _encode_items(column: pd.Series) -> _Items:
+    stored = _stored_codes(column)
+    return _items_from_text(column) if stored is None else _items_from_codes(*stored)
+
+
+def _encode_values(column: pd.Series) -> _Values:
+    stored = _stored_codes(column)
+    return _values_from_text(column) if stored is None else _values_from_codes(*stored)
+
+
 def _encode_columns(
     items: pd.Series, annotators: pd.Series, labels: pd.Series
-) -> tuple[tuple[np.ndarray, np.ndarray, bool], tuple[np.ndarray, np.ndarray], ...]:
-    """Code the three columns; in threads for large frames (pyarrow and pandas release the GIL)."""
-    if len(items) < 200_000:
-        return _factorize_grouped(items), _factorize(annotators), _factorize(labels)
+) -> tuple[_Items, _Values, _Values]:
+    """Code the three columns; text columns of large frames in threads (Arrow releases the GIL).
+
+    Categorical and dictionary columns need no hashing, so they are coded in this thread.
+    """
+    text = [not isinstance(c.dtype, pd.CategoricalDtype) for c in (items, annotators, labels)]
+    if len(items) < 200_000 or sum(text) < 2:
+        return _encode_items(items), _encode_values(annotators), _encode_values(labels)
     with ThreadPoolExecutor(max_workers=3) as pool:
-        first = pool.submit(_factorize_grouped, items)
-        second = pool.submit(_factorize, annotators)
-        third = pool.submit(_factorize, labels)
+        first = pool.submit(_encode_items, items)
+        second = pool.submit(_encode_values, annotators)
+        third = pool.submit(_encode_values, labels)
         return first.result(), second.result(), third.result()
 
 
@@ -213,6 +465,8 @@ def code_annotations(data: Any, level: str = "nominal") -> Coded:
 
     Rows with a missing item, annotator or label are dropped (and noted); exact duplicate rows
     count once. Several labels from one annotator for one item make the data multi-label.
+    Text columns and Categorical (or Arrow dictionary) columns holding the same values give
+    identical codes, so every statistic is the same; the Categorical path skips the hashing.
 
     Args:
         data: The long frame (``item``, ``annotator``, ``label``) or a reliability matrix.
@@ -243,58 +497,122 @@ def code_annotations(data: Any, level: str = "nominal") -> Coded:
             f"{int(nulls.sum())} rows with an empty item, annotator or label were left out"
         )
         item_col, ann_col, label_col = item_col[keep], ann_col[keep], label_col[keep]
-    (unit, unit_names, grouped), (ann, ann_raw), (lab, lab_raw) = _encode_columns(
+    items, annotators, labels = _encode_columns(
         item_col.reset_index(drop=True),
         ann_col.reset_index(drop=True),
         label_col.reset_index(drop=True),
     )
-    if not grouped:
-        order = np.argsort(unit, kind="stable")
-        unit, ann, lab = unit[order], ann[order], lab[order]
-    annotator_names, ann = _sorted_names(ann_raw, ann)
+    annotator_names, ann_rank = _sorted_names(annotators.names)
+    ann = _lookup(annotators, ann_rank)
+    lab_raw = labels.names
     label_text = [str(x) for x in lab_raw]
     numbers_raw: np.ndarray | None = None
     if level != "nominal":
         numbers_raw = _numeric(label_text, lab_raw, level)
         order = np.lexsort((np.asarray(label_text, dtype=object), numbers_raw))
-        rank = np.empty(len(order), dtype=np.int64)
-        rank[order] = np.arange(len(order))
+        lab_rank = np.empty(len(order), dtype=np.int64)
+        lab_rank[order] = np.arange(len(order))
         label_names = [label_text[i] for i in order]
-        lab = rank[lab]
         numbers_raw = numbers_raw[order]
     else:
-        label_names, lab = _sorted_names(lab_raw, lab)
-    n_units = len(unit_names)
+        label_names, lab_rank = _sorted_names(lab_raw)
+    lab = _lookup(labels, lab_rank)
+    unit = items.codes
+    if not items.grouped:
+        order = np.argsort(unit, kind="stable")
+        unit = unit[order]
+        ann, lab = Lookup(ann.stored[order], ann.table), Lookup(lab.stored[order], lab.table)
+    n_units = items.n_items
     n_ann, n_lab = len(annotator_names), len(label_names)
 
-    single, unit, ann, lab = _single_label(unit, ann, lab, n_units, n_ann, n_lab, notes)
-    if single:
+    sizes = _pairs_once(unit, ann.stored, ann.table.size, n_units, items.sizes)
+    if sizes is not None:
         return Coded(
             n_units=n_units,
             annotator_names=annotator_names,
             unit=unit,
-            annotator=ann,
-            value=lab,
+            annotator_codes=ann,
+            value_codes=lab,
             value_names=label_names,
             numbers=numbers_raw,
             multi=False,
             label_unit=unit,
-            label_annotator=ann,
-            label_code=lab,
+            label_annotator_codes=ann,
+            label_codes=lab,
             label_names=label_names,
-            unit_names=unit_names,
+            item_name_source=items.name_source,
+            item_name_at=items.name_at,
+            notes=notes,
+            _sizes=sizes,
+        )
+    single, unit, ann_final, lab_final = _drop_repeats(
+        unit, ann.final(), lab.final(), n_units, n_ann, n_lab, notes
+    )
+    if single:
+        coded = Coded(
+            n_units=n_units,
+            annotator_names=annotator_names,
+            unit=unit,
+            annotator_codes=ann_final,
+            value_codes=lab_final,
+            value_names=label_names,
+            numbers=numbers_raw,
+            multi=False,
+            label_unit=unit,
+            label_annotator_codes=ann_final,
+            label_codes=lab_final,
+            label_names=label_names,
             notes=notes,
         )
-    if level != "nominal":
+    elif level != "nominal":
         raise UsageError(
             f"some annotators gave several labels to one item (multi-label data); level "
             f"'{level}' needs one value per annotator and item",
             hint="Use level nominal: multi-label data is compared with the MASI distance.",
         )
-    return _code_sets(unit, ann, lab, n_units, annotator_names, label_names, unit_names, notes)
+    else:
+        coded = _code_sets(unit, ann_final, lab_final, n_units, annotator_names, label_names, notes)
+    coded.item_name_source, coded.item_name_at = items.name_source, items.name_at
+    return coded
 
 
-def _single_label(
+NEARBY_LIMIT = 16
+"""Largest item size for which repeats are found by comparing rows up to that far apart (each
+distance is one vectorised comparison); larger items fall back to a sort or bit masks."""
+
+
+def _pairs_once(
+    unit: np.ndarray,
+    ann: np.ndarray,
+    n_ann: int,
+    n_units: int,
+    sizes: np.ndarray | None = None,
+) -> np.ndarray | None:
+    """Values per item if every item x annotator pair occurs once (rows sorted by item), else None.
+
+    ``ann`` may be any one-to-one annotator numbering below ``n_ann`` (the stored codes);
+    ``sizes`` are the values per item when already known.
+    """
+    if sizes is None:
+        sizes = run_lengths(unit, n_units)
+    if unit.size == 0:
+        return sizes
+    longest = int(sizes.max())
+    if longest <= NEARBY_LIMIT:
+        # Rows of one item are adjacent, so a repeated pair is at most longest - 1 rows apart.
+        key = narrow_key(unit, n_ann, ann, n_units)
+        repeated = any(np.any(key[d:] == key[:-d]) for d in range(1, longest))
+        return None if repeated else sizes
+    bitcount = getattr(np, "bitwise_count", None)
+    if n_ann <= 64 and bitcount is not None:
+        bits = np.left_shift(np.uint64(1), ann.astype(np.uint64))
+        masks = np.bitwise_or.reduceat(bits, run_starts(unit))
+        return sizes if int(bitcount(masks).sum()) == unit.size else None
+    pair = np.sort(unit.astype(np.int64) * n_ann + ann)
+    return None if (pair[1:] == pair[:-1]).any() else sizes
+
+
+def _drop_repeats(
     unit: np.ndarray,
     ann: np.ndarray,
     lab: np.ndarray,
@@ -303,27 +621,18 @@ def _single_label(
     n_lab: int,
     notes: list[str],
 ) -> tuple[bool, np.ndarray, np.ndarray, np.ndarray]:
-    """Is every item x annotator pair present once? Drops exact duplicate rows on the way."""
-    if unit.size == 0:
-        return True, unit, ann, lab
-    bitcount = getattr(np, "bitwise_count", None)
-    if n_ann <= 64 and bitcount is not None:
-        starts = np.flatnonzero(np.concatenate(([True], unit[1:] != unit[:-1])))
-        bits = np.left_shift(np.uint64(1), ann.astype(np.uint64))
-        masks = np.bitwise_or.reduceat(bits, starts)
-        if int(bitcount(masks).sum()) == unit.size:
-            return True, unit, ann, lab
-    else:
-        pair = np.sort(unit * n_ann + ann)
-        if not (pair[1:] == pair[:-1]).any():
-            return True, unit, ann, lab
-    # Some item x annotator pair repeats: drop exact duplicates, then look again.
+    """Some item x annotator pair repeats: drop exact duplicate rows, then look again.
+
+    Returns whether the data is single-label after all, and the codes sorted by item,
+    annotator and label.
+    """
     if float(n_units) * n_ann * n_lab >= 2.0**62:
         raise UsageError(
             f"too many items x annotators x labels to code ({n_units} x {n_ann} x {n_lab})"
         )
-    key = (unit * n_ann + ann) * n_lab + lab
-    uniq = np.unique(key)
+    key = np.sort((unit * n_ann + ann) * n_lab + lab)
+    # np.unique's result, from one sort (np.unique itself is far slower on large int arrays).
+    uniq = key[np.concatenate(([True], key[1:] != key[:-1]))]
     dropped = key.size - uniq.size
     if dropped:
         notes.append(f"{dropped} repeated (item, annotator, label) rows counted once")
@@ -342,7 +651,6 @@ def _code_sets(
     n_units: int,
     annotator_names: list[str],
     label_names: list[str],
-    unit_names: np.ndarray,
     notes: list[str],
 ) -> Coded:
     """Multi-label rows (sorted by item, annotator, label; no duplicates) -> label-set values."""
@@ -387,16 +695,15 @@ def _code_sets(
         n_units=n_units,
         annotator_names=annotator_names,
         unit=unit[starts],
-        annotator=ann[starts],
-        value=rank[set_of_pair],
+        annotator_codes=ann[starts],
+        value_codes=rank[set_of_pair],
         value_names=value_names,
         numbers=None,
         multi=True,
         label_unit=unit,
-        label_annotator=ann,
-        label_code=lab,
+        label_annotator_codes=ann,
+        label_codes=lab,
         label_names=label_names,
         members=members,
-        unit_names=unit_names,
         notes=notes,
     )
