@@ -44,6 +44,12 @@ def _register() -> None:
 
     cli.add_command(apply)
     cli.add_command(export)
+    from labelreview.cli.check import check
+    from labelreview.cli.compare import compare
+    from labelreview.cli.signoff import signoff
+
+    for gate_command in (check, signoff, compare):
+        cli.add_command(gate_command)
 
 
 _register()
