@@ -33,8 +33,9 @@ from datetime import datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from labelreview.decisions import GENESIS, Entry, LogState, fold, rfc3339, utc_now
+from labelreview.decisions import Entry, fold, rfc3339, utc_now
 from labelreview.errors import LabelReviewError, UsageError
+from labelreview.gate import signoff_void_reasons
 from labelreview.model import SEVERITIES, SEVERITY_RANK
 from labelreview.report import CAUTIONS, neutralise_cell
 
@@ -200,32 +201,6 @@ def agreement_summary(
     }
 
 
-def signoff_problems(
-    entry: Entry, state: LogState, fingerprint: str, lexicon_hash: str
-) -> list[str]:
-    """Why a sign-off no longer holds (empty: it still does).
-
-    A sign-off holds while the log has no decision or revocation after it, the log head it
-    signed is still the head (later sign-offs aside), and the dataset fingerprint and lexicon
-    hash it recorded are the current ones.
-    """
-    problems: list[str] = []
-    later = [e for e in state.entries if e.seq > entry.seq and e.kind != "signoff"]
-    if later:
-        problems.append(f"{len(later)} decision(s) or revocation(s) were recorded after it")
-    before = [e for e in state.entries if e.seq < entry.seq]
-    heads = {entry.get("prev")}
-    decisions_before = [e for e in before if e.kind != "signoff"]
-    heads.add(decisions_before[-1].hash if decisions_before else GENESIS)
-    if entry.get("signs_head") not in heads:
-        problems.append("the log head it signed is not the head it was recorded at")
-    if entry.get("dataset_fingerprint") != fingerprint:
-        problems.append("the dataset files changed since")
-    if entry.get("lexicon_hash") != lexicon_hash:
-        problems.append("the lexicon set changed since")
-    return problems
-
-
 def _file_name(path: str, root: Path) -> str:
     try:
         return str(Path(path).resolve().relative_to(root.resolve()))
@@ -350,7 +325,9 @@ def build_audit_report(
 
     signoffs = []
     for entry in state.signoffs:
-        problems = signoff_problems(entry, state, fingerprint.digest, session.lexicon_hash)
+        problems = signoff_void_reasons(
+            entry, state, fingerprint=fingerprint, lexicon_hash=session.lexicon_hash
+        )
         signoffs.append(
             {
                 "seq": entry.seq,
@@ -1156,6 +1133,5 @@ __all__ = [
     "render_html",
     "render_json",
     "render_markdown",
-    "signoff_problems",
     "write_atomic",
 ]

@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Literal
 
+from labelreview.dataset import Fingerprint
 from labelreview.decisions import Entry, LogState, Verification, fold
 from labelreview.errors import DecisionError, LogError, UsageError
 from labelreview.lexicon import Category
@@ -98,6 +99,64 @@ class SignoffStatus:
         }
 
 
+def signoff_void_reasons(
+    entry: Entry,
+    state: LogState,
+    *,
+    fingerprint: Fingerprint,
+    lexicon_hash: str,
+    fail_on: str | None = None,
+) -> list[str]:
+    """Why one sign-off entry no longer holds, as plain sentences (empty: it still holds).
+
+    The one rule for sign-off validity: :func:`signoff_status` (``check --require-signoff``)
+    applies it to the latest sign-off, the audit export to every sign-off. The entry must name as
+    ``signs_head`` the head the log had when it was written (its ``prev``); no decision or
+    revocation may follow it; the dataset fingerprint and the lexicon hash must be unchanged; and,
+    when ``fail_on`` is given, it must have been given at that gate level or a stricter one.
+    Whether the log verifies is the caller's question.
+    """
+    reasons: list[str] = []
+    head_then = str(entry.get("prev"))
+    if entry.get("signs_head") != head_then:
+        reasons.append(
+            f"it names log head {str(entry.get('signs_head'))[:12]}, but the head when it was "
+            f"written was {head_then[:12]}"
+        )
+    later = [e for e in state.entries if e.seq > entry.seq and e.kind != "signoff"]
+    if later:
+        first = later[0]
+        what = "decision" if first.kind == "decision" else "revocation"
+        more = f" and {len(later) - 1} more" if len(later) > 1 else ""
+        reasons.append(
+            f"a {what} on '{first.label}' (seq {first.seq}, by {first.actor}){more} came after it"
+        )
+    if entry.get("dataset_fingerprint") != fingerprint.digest:
+        then_files = entry.get("dataset_files")
+        changed = ""
+        if isinstance(then_files, Mapping):
+            roles = sorted(
+                role
+                for role in set(then_files) | set(fingerprint.files)
+                if then_files.get(role) != fingerprint.files.get(role)
+            )
+            if roles:
+                changed = f" ({', '.join(roles)})"
+        reasons.append(f"the dataset files changed since it was given{changed}")
+    if entry.get("lexicon_hash") != lexicon_hash:
+        reasons.append(
+            f"the lexicon set changed since it was given (then "
+            f"{str(entry.get('lexicon_hash'))[:19]}, now {lexicon_hash[:19]})"
+        )
+    signed_level = str(entry.get("fail_on"))
+    if fail_on is not None and SEVERITY_RANK.get(signed_level, 99) > SEVERITY_RANK[fail_on]:
+        reasons.append(
+            f"it was given at gate level {signed_level}; this check asks for {fail_on}, which "
+            "is stricter"
+        )
+    return reasons
+
+
 def signoff_status(
     session: ReviewSession,
     *,
@@ -134,45 +193,13 @@ def signoff_status(
         return SignoffStatus("void", latest, (reason,))
     if latest is None:
         return SignoffStatus("none", None, ("no sign-off has been recorded",))
-    reasons: list[str] = []
-    head_then = str(latest.get("prev"))
-    if latest.get("signs_head") != head_then:
-        reasons.append(
-            f"it names log head {str(latest.get('signs_head'))[:12]}, but the head when it was "
-            f"written was {head_then[:12]}"
-        )
-    later = [e for e in state.entries if e.seq > latest.seq and e.kind != "signoff"]
-    if later:
-        first = later[0]
-        what = "decision" if first.kind == "decision" else "revocation"
-        more = f" and {len(later) - 1} more" if len(later) > 1 else ""
-        reasons.append(
-            f"a {what} on '{first.label}' (seq {first.seq}, by {first.actor}){more} came after it"
-        )
-    fingerprint = session.fingerprint()
-    if latest.get("dataset_fingerprint") != fingerprint.digest:
-        then_files = latest.get("dataset_files")
-        changed = ""
-        if isinstance(then_files, Mapping):
-            roles = sorted(
-                role
-                for role in set(then_files) | set(fingerprint.files)
-                if then_files.get(role) != fingerprint.files.get(role)
-            )
-            if roles:
-                changed = f" ({', '.join(roles)})"
-        reasons.append(f"the dataset files changed since it was given{changed}")
-    if latest.get("lexicon_hash") != session.lexicon_hash:
-        reasons.append(
-            f"the lexicon set changed since it was given (then "
-            f"{str(latest.get('lexicon_hash'))[:19]}, now {session.lexicon_hash[:19]})"
-        )
-    signed_level = str(latest.get("fail_on"))
-    if fail_on is not None and SEVERITY_RANK.get(signed_level, 99) > SEVERITY_RANK[fail_on]:
-        reasons.append(
-            f"it was given at gate level {signed_level}; this check asks for {fail_on}, which "
-            "is stricter"
-        )
+    reasons = signoff_void_reasons(
+        latest,
+        state,
+        fingerprint=session.fingerprint(),
+        lexicon_hash=session.lexicon_hash,
+        fail_on=fail_on,
+    )
     if reasons:
         return SignoffStatus("void", latest, tuple(reasons))
     return SignoffStatus("valid", latest)
