@@ -156,6 +156,73 @@ class CompareConfig:
 
 
 @dataclass(frozen=True)
+class SignalsConfig:
+    """The ``signals:`` section: thresholds of the data signals (``labelreview.signals``)."""
+
+    contested_below: float = 0.667
+    """A label whose one-vs-rest alpha is below this is contested (Krippendorff 2004's
+    "tentative" bound). Labels need ``agreement.min_items`` comparable items to get an alpha."""
+    fdr: float = 0.05
+    """Benjamini-Hochberg false discovery rate, over all tests of one kind."""
+    disparity_ratio: float = 0.8
+    """Lowest-to-highest group rate ratio below which a label is flagged (the four-fifths rule
+    of thumb, 29 CFR 1607.4(D), used as a screening heuristic)."""
+    min_group_size: int = 10
+    """k: groups with fewer items are never shown or tested."""
+    min_expected: float = 5.0
+    """The chi-square test is run only when every expected cell count reaches this."""
+    proxy_nmi: float = 0.25
+    """An item column whose normalised mutual information with an attribute reaches this is
+    reported as standing in for it ..."""
+    proxy_cramers_v: float = 0.5
+    """... as is one whose Cramér's V reaches this."""
+    proxy_columns: tuple[str, ...] | None = None
+    """Item columns checked as stand-ins; None: every column but the item, text and preview
+    roles and the attributes (plus the text's length); ``[]``: none."""
+    proxy_max_levels: int = 50
+    """Text columns with more distinct values than this (ids, free text) are not checked."""
+    skew_ratio: float = 0.5
+    """An annotator whose rate for a label, against the others' on the same items, has a
+    lower-to-higher ratio below this is flagged (when the test also holds)."""
+    skew_min_items: int = 20
+    """Annotators need this many comparable items to be tested."""
+
+
+QUEUE_WEIGHT_KEYS: tuple[str, ...] = (
+    "lexicon",
+    "contested",
+    "disparity",
+    "annotator_skew",
+    "prevalence",
+)
+QUEUE_SEVERITY_KEYS: tuple[str, ...] = ("contested", "disparity", "annotator_skew")
+
+
+def _default_weights() -> dict[str, float]:
+    return {
+        "lexicon": 3.0,
+        "contested": 2.0,
+        "disparity": 3.0,
+        "annotator_skew": 1.0,
+        "prevalence": 1.0,
+    }
+
+
+def _default_signal_severity() -> dict[str, Severity]:
+    return {"contested": "low", "disparity": "medium", "annotator_skew": "low"}
+
+
+@dataclass(frozen=True)
+class QueueConfig:
+    """The ``queue:`` section: how the review queue scores and grades its entries."""
+
+    weights: dict[str, float] = field(default_factory=_default_weights)
+    """Weight of each score component (:data:`QUEUE_WEIGHT_KEYS`); 0 switches one off."""
+    severity: dict[str, Severity] = field(default_factory=_default_signal_severity)
+    """The severity each data signal gives a label (:data:`QUEUE_SEVERITY_KEYS`)."""
+
+
+@dataclass(frozen=True)
 class DatasetConfig:
     """A dataset folder's settings, validated; paths are joined to the folder."""
 
@@ -176,6 +243,8 @@ class DatasetConfig:
     agreement: AgreementConfig = field(default_factory=AgreementConfig)
     decisions: DecisionsConfig = field(default_factory=DecisionsConfig)
     compare: CompareConfig = field(default_factory=CompareConfig)
+    signals: SignalsConfig = field(default_factory=SignalsConfig)
+    queue: QueueConfig = field(default_factory=QueueConfig)
     curator: str | None = None
     notes: tuple[str, ...] = ()
     """What detection found or could not decide, in plain sentences."""
@@ -207,6 +276,8 @@ _TOP_KEYS = (
     "agreement",
     "decisions",
     "compare",
+    "signals",
+    "queue",
     "curator",
 )
 _ANNOTATION_KEYS = (
@@ -234,6 +305,20 @@ _AGREEMENT_KEYS = (
 )
 _DECISION_KEYS = ("log", "min_reason_length", "fail_on", "retire_fallbacks", "four_eyes")
 _COMPARE_KEYS = ("agreement_drop",)
+_SIGNAL_KEYS = (
+    "contested_below",
+    "fdr",
+    "disparity_ratio",
+    "min_group_size",
+    "min_expected",
+    "proxy_nmi",
+    "proxy_cramers_v",
+    "proxy_columns",
+    "proxy_max_levels",
+    "skew_ratio",
+    "skew_min_items",
+)
+_QUEUE_KEYS = ("weights", "severity")
 _NULL = "tag:yaml.org,2002:null"
 
 
@@ -472,6 +557,9 @@ def _parse(path: Path, root: Path, text: str) -> DatasetConfig:
                 )
             )
 
+    signals = _signals(reader, top["signals"]) if "signals" in top else SignalsConfig()
+    queue = _queue(reader, top["queue"]) if "queue" in top else QueueConfig()
+
     config = DatasetConfig(
         root=root,
         source=path,
@@ -486,6 +574,8 @@ def _parse(path: Path, root: Path, text: str) -> DatasetConfig:
         agreement=agreement,
         decisions=decisions,
         compare=compare,
+        signals=signals,
+        queue=queue,
         curator=curator,
         lines=dict(reader.lines),
     )
@@ -534,6 +624,60 @@ def _agreement(reader: _Reader, node: yaml.Node) -> AgreementConfig:
             f"'agreement.reliable' ({result.reliable:g})",
         )
     return result
+
+
+def _signals(reader: _Reader, node: yaml.Node) -> SignalsConfig:
+    if reader.is_null(node):
+        return SignalsConfig()
+    section = reader.mapping(node, "signals", _SIGNAL_KEYS)
+    values: dict[str, Any] = {}
+    # (key, lowest, highest, whole number)
+    bounds: dict[str, tuple[float, float | None, bool]] = {
+        "contested_below": (-1, 1, False),
+        "fdr": (0, 1, False),
+        "disparity_ratio": (0, 1, False),
+        "min_group_size": (1, None, True),
+        "min_expected": (0, None, False),
+        "proxy_nmi": (0, 1, False),
+        "proxy_cramers_v": (0, 1, False),
+        "proxy_max_levels": (2, None, True),
+        "skew_ratio": (0, 1, False),
+        "skew_min_items": (1, None, True),
+    }
+    for key, (low, high, whole) in bounds.items():
+        if key in section:
+            number = reader.number(section[key], f"signals.{key}", low, high, whole)
+            values[key] = int(number) if whole else number
+    if "fdr" in values and values["fdr"] <= 0:
+        raise reader.error(section["fdr"], "'signals.fdr' must be above 0; got 0")
+    if "proxy_columns" in section:
+        node = section["proxy_columns"]
+        values["proxy_columns"] = (
+            None if reader.is_null(node) else reader.text_list(node, "signals.proxy_columns")
+        )
+    return replace(SignalsConfig(), **values)
+
+
+def _queue(reader: _Reader, node: yaml.Node) -> QueueConfig:
+    if reader.is_null(node):
+        return QueueConfig()
+    section = reader.mapping(node, "queue", _QUEUE_KEYS)
+    weights = _default_weights()
+    if "weights" in section and not reader.is_null(section["weights"]):
+        entries = reader.mapping(section["weights"], "queue.weights", QUEUE_WEIGHT_KEYS)
+        for key, child in entries.items():
+            weights[key] = reader.number(child, f"queue.weights.{key}", 0, 1000, integer=False)
+        if not any(weights.values()):
+            raise reader.error(
+                section["weights"],
+                "'queue.weights' are all 0; at least one must be above 0 to rank the queue",
+            )
+    severity = _default_signal_severity()
+    if "severity" in section and not reader.is_null(section["severity"]):
+        entries = reader.mapping(section["severity"], "queue.severity", QUEUE_SEVERITY_KEYS)
+        for key, child in entries.items():
+            severity[key] = reader.choice(child, f"queue.severity.{key}", SEVERITIES)  # type: ignore[assignment]
+    return QueueConfig(weights=weights, severity=severity)
 
 
 def _decisions(reader: _Reader, node: yaml.Node) -> DecisionsConfig:
@@ -1169,7 +1313,9 @@ __all__ = [
     "DatasetConfig",
     "ItemsConfig",
     "LexiconsConfig",
+    "QueueConfig",
     "ScanConfig",
+    "SignalsConfig",
     "TaxonomyConfig",
     "load_config",
     "write_starter_config",

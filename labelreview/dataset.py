@@ -22,7 +22,7 @@ from labelreview.config import (
     load_config,
 )
 from labelreview.errors import ConfigError, LoadError, UsageError
-from labelreview.io import detect_format, load_annotations, load_items, load_taxonomy
+from labelreview.io import detect_format, load_annotations, load_items_with_context, load_taxonomy
 from labelreview.io._common import check_encoding
 from labelreview.model import SUBJECTS, LoadReport, TaxonomyLabel
 
@@ -41,6 +41,9 @@ class Dataset:
     taxonomy: list[TaxonomyLabel] = field(default_factory=list)
     items: pd.DataFrame | None = None
     reports: list[LoadReport] = field(default_factory=list)
+    item_context: pd.DataFrame | None = None
+    """Other item columns, read only for the proxy check (rows as in ``items``); None unless
+    the config lists consented attributes and ``signals.proxy_columns`` is not empty."""
 
     def labels(self) -> pd.DataFrame:
         """Every distinct label in the taxonomy and the annotations, sorted.
@@ -220,14 +223,23 @@ def load_dataset(
         )
 
     items: pd.DataFrame | None = None
+    context: pd.DataFrame | None = None
     if config.items is not None:
         _must_exist(config, config.items.path, "items.path")
-        items = load_items(
+        # Other columns are read only to measure whether they stand in for a consented
+        # attribute; without attributes there is nothing to measure against.
+        wanted: tuple[str, ...] | None = ()
+        if config.items.attributes:
+            wanted = config.signals.proxy_columns
+        items, context = load_items_with_context(
             config.items.path,
             columns=config.items.columns,
             attributes=config.items.attributes,
             encoding=config.items.encoding,
+            context=wanted,
         )
+        if not len(context.columns):
+            context = None
         reports.append(
             LoadReport(
                 path=str(config.items.path),
@@ -242,4 +254,5 @@ def load_dataset(
         taxonomy=labels,
         items=items,
         reports=reports,
+        item_context=context,
     )

@@ -37,11 +37,13 @@ from labelreview.decisions import Entry, fold, rfc3339, utc_now
 from labelreview.errors import LabelReviewError, UsageError
 from labelreview.gate import signoff_void_reasons
 from labelreview.model import SEVERITIES, SEVERITY_RANK
-from labelreview.report import CAUTIONS, neutralise_cell
+from labelreview.queue import DATA_SIGNALS, FORMULA
+from labelreview.report import neutralise_cell
 
 if TYPE_CHECKING:
     import pandas as pd
 
+    from labelreview.agreement import AgreementResult
     from labelreview.config import DatasetConfig
     from labelreview.review import ReviewSession
 
@@ -141,12 +143,21 @@ def write_atomic(path: Path, data: bytes, *, force: bool = False) -> Path:
 
 
 def agreement_summary(
-    annotations: pd.DataFrame | None, config: DatasetConfig | None = None
+    annotations: pd.DataFrame | None,
+    config: DatasetConfig | None = None,
+    *,
+    result: AgreementResult | None = None,
 ) -> dict[str, Any]:
     """Overall Krippendorff's alpha with its reading and the least reliable labels.
 
     Never raises for data on which agreement is undefined (one annotator, one label, no item
     seen twice): the summary then says ``available: False`` and why.
+
+    Args:
+        annotations: The annotation frame.
+        config: The dataset config (agreement level, thresholds, min_items).
+        result: An agreement report already computed for these annotations (the review
+            session's, from the data signals); None computes one.
     """
     from labelreview.agreement import AgreementThresholds, agreement_report
 
@@ -158,21 +169,22 @@ def agreement_summary(
             "note": "agreement is undefined: the annotations come from a single annotator",
         }
     settings = config.agreement if config is not None else None
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            result = agreement_report(
-                annotations,
-                level=settings.level if settings else "nominal",
-                bootstrap=0,
-                leave_out=False,
-                thresholds=AgreementThresholds(settings.reliable, settings.tentative)
-                if settings
-                else None,
-                min_items=settings.min_items if settings else 10,
-            )
-    except LabelReviewError as exc:
-        return {"available": False, "note": f"agreement could not be computed: {exc.message}"}
+    if result is None:
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                result = agreement_report(
+                    annotations,
+                    level=settings.level if settings else "nominal",
+                    bootstrap=0,
+                    leave_out=False,
+                    thresholds=AgreementThresholds(settings.reliable, settings.tentative)
+                    if settings
+                    else None,
+                    min_items=settings.min_items if settings else 10,
+                )
+        except LabelReviewError as exc:
+            return {"available": False, "note": f"agreement could not be computed: {exc.message}"}
     if result.alpha is None:
         return {
             "available": False,
@@ -285,8 +297,10 @@ def build_audit_report(
     unresolved = [
         {
             "label": f.label,
+            "score": f.score,
             "severity": f.severity,
             "categories": list(f.categories),
+            "signals": list(f.signal_names),
             "reasons": list(f.reasons),
             "annotations": f.annotations,
             "at_gate": SEVERITY_RANK[f.severity] >= gate_rank,
@@ -294,6 +308,35 @@ def build_audit_report(
         for f in flags
         if state.status(f.label) == "open"
     ]
+    by_signal: dict[str, dict[str, int]] = {
+        name: {"flags": 0, "decided": 0, "open": 0} for name in DATA_SIGNALS
+    }
+    for f in flags:
+        decided = state.status(f.label) != "open"
+        for name in f.signal_names:
+            row = by_signal[name]
+            row["flags"] += 1
+            row["decided" if decided else "open"] += 1
+    queue = session.queue()
+    queue_section = {
+        "formula": FORMULA,
+        "weights": dict(queue.weights),
+        "signal_severity": dict(queue.severity),
+        "entries": len(flags),
+        "data_only": sum(1 for f in flags if not f.categories),
+        "attributes": list(queue.signals.attribute_names),
+        "proxies": [
+            {
+                "column": p.column,
+                "attribute": p.attribute,
+                "nmi": None if p.nmi is None else round(p.nmi, 4),
+                "cramers_v": None if p.cramers_v is None else round(p.cramers_v, 4),
+            }
+            for p in queue.signals.proxies
+            if p.flagged
+        ],
+        "notes": list(queue.notes),
+    }
 
     categories: dict[str, dict[str, int]] = {}
     severities: dict[str, dict[str, int]] = {
@@ -385,13 +428,15 @@ def build_audit_report(
         "counts": {
             "by_category": [{"category": k, **v} for k, v in sorted(categories.items())],
             "by_severity": [{"severity": k, **v} for k, v in severities.items()],
+            "by_signal": [{"signal": k, **v} for k, v in by_signal.items()],
             "by_action": by_action,
         },
         "decisions": decisions,
         "unresolved": unresolved,
+        "queue": queue_section,
         "agreement": agreement_section,
         "signoffs": signoffs,
-        "cautions": list(CAUTIONS),
+        "cautions": list(queue.cautions()),
     }
 
 
@@ -480,6 +525,12 @@ def _join(values: Sequence[Any]) -> str:
     return "; ".join(str(v) for v in values)
 
 
+def _weights(values: Mapping[str, Any]) -> str:
+    return ", ".join(
+        f"{k} {v:g}" if isinstance(v, float) else f"{k} {v}" for k, v in values.items()
+    )
+
+
 def _csv_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
     rows: list[dict[str, Any]] = []
 
@@ -526,6 +577,13 @@ def _csv_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
             value=row["flags"],
             text=f"{row['decided']} decided, {row['open']} open",
         )
+    for row in report["counts"]["by_signal"]:
+        add(
+            "count",
+            key=f"signal:{row['signal']}",
+            value=row["flags"],
+            text=f"{row['decided']} decided, {row['open']} open",
+        )
     for row in report["counts"]["by_action"]:
         add("count", key=f"action:{row['action']}", action=row["action"], value=row["decisions"])
     for d in report["decisions"]:
@@ -551,13 +609,29 @@ def _csv_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
     for u in report["unresolved"]:
         add(
             "unresolved",
-            key=_join(u["categories"]),
+            key=_join([*u["categories"], *u["signals"]]),
             label=u["label"],
             severity=u["severity"],
             status="at gate" if u["at_gate"] else "below gate",
-            value=u["annotations"],
-            text=_join(u["reasons"]),
+            value=u["score"],
+            text=f"{u['annotations']} annotations; " + _join(u["reasons"]),
         )
+    queue = report["queue"]
+    add("queue", key="formula", text=queue["formula"])
+    add("queue", key="weights", text=_weights(queue["weights"]))
+    add("queue", key="signal_severity", text=_weights(queue["signal_severity"]))
+    add("queue", key="entries", value=queue["entries"], text=f"{queue['data_only']} data-only")
+    add("queue", key="attributes", text=_join(queue["attributes"]) or "none configured")
+    for p in queue["proxies"]:
+        add(
+            "queue",
+            key="proxy",
+            label=p["column"],
+            value=p["nmi"],
+            text=f"stands in for {p['attribute']} (Cramér's V {p['cramers_v']})",
+        )
+    for text in queue["notes"]:
+        add("queue", key="note", text=text)
     agreement = report["agreement"]
     if agreement.get("available"):
         add(
@@ -699,6 +773,7 @@ def render_markdown(report: Mapping[str, Any]) -> str:
     dataset = report["dataset"]
     log = report["log"]
     gate = report["gate"]
+    queue = report["queue"]
     lines = [
         f"# Audit trail: {md_text(dataset['name'])}",
         "",
@@ -736,6 +811,15 @@ def render_markdown(report: Mapping[str, Any]) -> str:
                 for r in report["counts"]["by_severity"]
             ],
         ),
+        "### By data signal",
+        "",
+        *_md_table(
+            ["signal", "flags", "decided", "open"],
+            [
+                [r["signal"], r["flags"], r["decided"], r["open"]]
+                for r in report["counts"]["by_signal"]
+            ],
+        ),
         "### By action",
         "",
         *_md_table(
@@ -764,18 +848,43 @@ def render_markdown(report: Mapping[str, Any]) -> str:
         "## Unresolved flags",
         "",
         *_md_table(
-            ["label", "severity", "at gate", "categories", "annotations", "reasons"],
+            [
+                "score",
+                "label",
+                "severity",
+                "at gate",
+                "categories, signals",
+                "annotations",
+                "reasons",
+            ],
             [
                 [
+                    u["score"],
                     u["label"],
                     u["severity"],
                     "yes" if u["at_gate"] else "no",
-                    _join(u["categories"]),
+                    _join([*u["categories"], *u["signals"]]),
                     u["annotations"],
                     _join(u["reasons"]),
                 ]
                 for u in report["unresolved"]
             ],
+        ),
+        "## The review queue",
+        "",
+        f"- Entries: {queue['entries']} ({queue['data_only']} flagged by data signals only)",
+        f"- Score: {md_text(queue['formula'])}",
+        f"- Weights: {md_text(_weights(queue['weights']))}",
+        f"- Severity of data signals: {md_text(_weights(queue['signal_severity']))}",
+        "- Consented attributes: "
+        + (md_text(_join(queue["attributes"])) if queue["attributes"] else "none configured"),
+        *[f"- Note: {md_text(n)}" for n in queue["notes"]],
+        "",
+        "Columns that stand in for a consented attribute:",
+        "",
+        *_md_table(
+            ["column", "attribute", "NMI", "Cramér's V"],
+            [[p["column"], p["attribute"], p["nmi"], p["cramers_v"]] for p in queue["proxies"]],
         ),
         "## Annotator agreement",
         "",
@@ -937,6 +1046,7 @@ def render_html(report: Mapping[str, Any]) -> str:
     log = report["log"]
     gate = report["gate"]
     counts = report["counts"]
+    queue = report["queue"]
     out: list[str] = [
         "<!DOCTYPE html>",
         '<html lang="en">',
@@ -1007,6 +1117,15 @@ def render_html(report: Mapping[str, Any]) -> str:
             ],
             numeric=(1, 2, 3),
         ),
+        "<h3>By data signal</h3>",
+        _html_table(
+            ["signal", "flags", "decided", "open"],
+            [
+                [_e(r["signal"]), _e(r["flags"]), _e(r["decided"]), _e(r["open"])]
+                for r in counts["by_signal"]
+            ],
+            numeric=(1, 2, 3),
+        ),
         "<h3>By action</h3>",
         _html_table(
             ["action", "decisions"],
@@ -1034,19 +1153,49 @@ def render_html(report: Mapping[str, Any]) -> str:
         ),
         "<h2>Unresolved flags</h2>",
         _html_table(
-            ["label", "severity", "at gate", "categories", "annotations", "reasons"],
+            [
+                "score",
+                "label",
+                "severity",
+                "at gate",
+                "categories, signals",
+                "annotations",
+                "reasons",
+            ],
             [
                 [
+                    _e(u["score"]),
                     _e(u["label"]),
                     _sev(u["severity"]),
                     "yes" if u["at_gate"] else "no",
-                    _e(_join(u["categories"])),
+                    _e(_join([*u["categories"], *u["signals"]])),
                     _e(u["annotations"]),
                     _e(_join(u["reasons"])),
                 ]
                 for u in report["unresolved"]
             ],
-            numeric=(4,),
+            numeric=(0, 5),
+        ),
+        "<h2>The review queue</h2>",
+        '<dl class="facts">',
+        f"<dt>Entries</dt><dd>{_e(queue['entries'])} ({_e(queue['data_only'])} flagged by "
+        "data signals only)</dd>",
+        f"<dt>Score</dt><dd>{_e(queue['formula'])}</dd>",
+        f"<dt>Weights</dt><dd>{_e(_weights(queue['weights']))}</dd>",
+        f"<dt>Severity of data signals</dt><dd>{_e(_weights(queue['signal_severity']))}</dd>",
+        "<dt>Consented attributes</dt><dd>"
+        + (_e(_join(queue["attributes"])) if queue["attributes"] else "none configured")
+        + "</dd>",
+        *[f"<dt>Note</dt><dd>{_e(n)}</dd>" for n in queue["notes"]],
+        "</dl>",
+        "<h3>Columns that stand in for a consented attribute</h3>",
+        _html_table(
+            ["column", "attribute", "NMI", "Cramér's V"],
+            [
+                [_e(p["column"]), _e(p["attribute"]), _e(p["nmi"]), _e(p["cramers_v"])]
+                for p in queue["proxies"]
+            ],
+            numeric=(2, 3),
         ),
         "<h2>Annotator agreement</h2>",
     ]

@@ -267,6 +267,14 @@ class GateFlag:
             out.append((category, top, found))
         return out
 
+    def by_signal(self, severities: Mapping[str, str]) -> list[tuple[str, str, list[str]]]:
+        """(data signal, its configured severity, its reasons) per data signal of the flag."""
+        out = []
+        for name in self.flag.signal_names:
+            reasons = [r.detail for r in self.flag.evidence if r.signal == name]
+            out.append((name, severities.get(name, self.flag.severity), reasons))
+        return out
+
     def to_dict(self) -> dict[str, Any]:
         data = self.flag.to_dict()
         data["location"] = None if self.location is None else self.location.to_dict()
@@ -291,6 +299,10 @@ class GateResult:
     categories: Mapping[str, Category]
     """The lexicon's categories by id (the SARIF rules)."""
     counts: Mapping[str, Any] = field(default_factory=dict)
+    signal_severity: Mapping[str, str] = field(default_factory=dict)
+    """Data signal -> the severity it gives a label (``queue.severity``; the SARIF rules)."""
+    notes: tuple[str, ...] = ()
+    """What the review queue could not check (no attributes, agreement undefined...)."""
     dataset_fingerprint: str = ""
     tool_version: str = ""
     cautions: tuple[str, ...] = CAUTIONS
@@ -378,6 +390,7 @@ class GateResult:
             "require_signoff": self.require_signoff,
             "signoff": self.signoff.to_dict(),
             "counts": dict(self.counts),
+            "notes": list(self.notes),
             "cautions": list(self.cautions),
         }
 
@@ -459,6 +472,7 @@ def check_gate(
         "labels": len(session.labels),
         "flags": len(session.flags),
         "flags_by_severity": by_severity,
+        "data_only": sum(1 for f in session.flags if not f.categories),
         "decided": decided,
         "open": len(session.flags) - decided,
         "unresolved_at_level": len(unresolved),
@@ -478,6 +492,9 @@ def check_gate(
         signoff=status,
         categories=dict(session.scanned.lexicon.categories),
         counts=counts,
+        signal_severity=dict(session.queue().severity),
+        notes=session.queue().notes,
+        cautions=session.queue().cautions(),
         dataset_fingerprint=session.fingerprint().digest,
         tool_version=_tool_version(),
     )

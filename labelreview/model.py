@@ -98,39 +98,86 @@ class LoadReport:
     notes: tuple[str, ...] = ()
 
 
+SIGNAL_NAMES: tuple[str, ...] = (
+    "lexicon",
+    "contested",
+    "disparity",
+    "annotator_skew",
+    "proxy",
+)
+"""Where a reason comes from: a lexicon term, or one of the data signals (``labelreview.signals``).
+``proxy`` reasons explain and never add to the score."""
+
+
+@dataclass(frozen=True)
+class Reason:
+    """One reason to look at a label, in plain words, with the figure it rests on."""
+
+    signal: str
+    """One of :data:`SIGNAL_NAMES`."""
+    detail: str
+    """One plain sentence, with its numbers."""
+    value: float | str | None = None
+    """The figure the sentence rests on: the matched term (lexicon), the label's alpha
+    (contested), the lowest-to-highest rate ratio (disparity, annotator_skew), the normalised
+    mutual information (proxy)."""
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"signal": self.signal, "detail": self.detail, "value": self.value}
+
+
 @dataclass(frozen=True)
 class Flag:
     """One label that needs a human look, with every reason gathered in one place.
 
-    Built from a scan's findings (and, where they apply, data signals); it is what the review
-    queue lists, what the gate counts, and what a decision snapshots into the log.
+    Built by :func:`labelreview.queue.build_queue` from a scan's findings and the data signals;
+    it is what the review queue lists, what the gate counts, and what a decision snapshots into
+    the log.
     """
 
     label: str
     severity: Severity
-    """The highest severity among the label's reasons."""
+    """The highest severity among the label's reasons (data signals have configured
+    severities, ``queue.severity``)."""
     categories: tuple[str, ...]
+    """Lexicon categories; empty for a label only the data signals flag."""
     terms: tuple[str, ...]
     reasons: tuple[str, ...]
-    """Plain sentences, one per reason."""
+    """Plain sentences, one per reason (the ``detail`` of each of ``evidence``)."""
     suggestions: tuple[str, ...] = ()
     annotations: int = 0
     """Annotation rows carrying the label."""
     items: int = 0
     """Distinct items carrying the label."""
     signals: dict[str, Any] = field(default_factory=dict)
-    """Data signals by name (per-label agreement and the like), JSON-ready values."""
+    """Data signals by name (``contested``, ``disparity``, ``annotator_skew``), JSON-ready."""
+    score: float = 0.0
+    """The queue's priority, 0 to 100 (formula in the README and :mod:`labelreview.queue`)."""
+    score_parts: dict[str, float] = field(default_factory=dict)
+    """Each score component (0 to 1) before weighting, by name."""
+    evidence: tuple[Reason, ...] = ()
+    """The reasons as objects (signal, detail, value), in the order of ``reasons``."""
+
+    @property
+    def signal_names(self) -> tuple[str, ...]:
+        """The data signals behind this flag (``lexicon`` and ``proxy`` left out)."""
+        names = (r.signal for r in self.evidence if r.signal not in ("lexicon", "proxy"))
+        return tuple(dict.fromkeys(names))
 
     def to_dict(self) -> dict[str, Any]:
-        """A JSON-ready dict (lists instead of tuples)."""
+        """A JSON-ready dict (lists instead of tuples); ``reasons`` stay plain sentences and
+        ``evidence`` holds them as objects."""
         return {
             "label": self.label,
             "severity": self.severity,
+            "score": self.score,
             "categories": list(self.categories),
             "terms": list(self.terms),
             "reasons": list(self.reasons),
+            "evidence": [r.to_dict() for r in self.evidence],
             "suggestions": list(self.suggestions),
             "annotations": self.annotations,
             "items": self.items,
+            "score_parts": dict(self.score_parts),
             "signals": dict(self.signals),
         }

@@ -1,4 +1,4 @@
-"""A review session: one dataset, its flags, its decision log, and the rules for deciding.
+"""A review session: one dataset, its review queue, its decision log, and the rules for deciding.
 
 Both front ends decide through :class:`ReviewSession`: ``labelreview decide`` opens one for a
 single command, the review app keeps one open (and the log locked) for a whole sitting. The
@@ -31,8 +31,10 @@ from labelreview.decisions import (
 )
 from labelreview.errors import DecisionError, UsageError
 from labelreview.model import SEVERITY_RANK, Flag
-from labelreview.report import DatasetScan, flags_from_scan, scan_dataset
+from labelreview.queue import Queue, build_queue
+from labelreview.report import DatasetScan, scan_dataset
 from labelreview.scan import Scanner
+from labelreview.signals import DataSignals, compute_signals
 
 MAX_LABEL_LENGTH = 200
 
@@ -83,24 +85,27 @@ class DecisionCheck:
 
 @dataclass
 class ReviewSession:
-    """A loaded, scanned dataset plus its decision log."""
+    """A loaded, scanned dataset plus its decision log.
+
+    :attr:`flags` is the ranked review queue (:mod:`labelreview.queue`): lexicon findings and
+    data signals merged, most urgent first. Every front end reads it; the data signals behind
+    it are computed once, on first use.
+    """
 
     scanned: DatasetScan
     curator: str
     clock: Clock = utc_now
-    flags: list[Flag] = field(default_factory=list)
-    """The labels needing a look, most urgent first (the scan's flags unless given)."""
     log: DecisionLog = field(init=False)
     _state: LogState | None = field(default=None, init=False, repr=False)
     _writer: LogWriter | None = field(default=None, init=False, repr=False)
     _fingerprint: Fingerprint | None = field(default=None, init=False, repr=False)
     _stamp: tuple[int, int] | None = field(default=None, init=False, repr=False)
+    _signals: DataSignals | None = field(default=None, init=False, repr=False)
+    _queue: Queue | None = field(default=None, init=False, repr=False)
+    _flags: list[Flag] | None = field(default=None, init=False, repr=False)
 
     def __post_init__(self) -> None:
-        if not self.flags:
-            self.flags = flags_from_scan(self.scanned.result)
         self.log = DecisionLog(self.config.log_path, clock=self.clock)
-        self._by_label = {flag.label: flag for flag in self.flags}
 
     # -- opening -------------------------------------------------------------------------------
 
@@ -167,8 +172,32 @@ class ReviewSession:
             self._fingerprint = dataset_fingerprint(self.dataset)
         return self._fingerprint
 
+    def signals(self) -> DataSignals:
+        """The data signals (contested, disparity, proxies, skew), computed once per session."""
+        if self._signals is None:
+            self._signals = compute_signals(self.dataset)
+        return self._signals
+
+    def queue(self) -> Queue:
+        """The ranked review queue, built once per session from the scan and the signals."""
+        if self._queue is None:
+            self._queue = build_queue(self.scanned.result, self.signals(), self.config.queue)
+        return self._queue
+
+    @property
+    def flags(self) -> list[Flag]:
+        """The review queue's entries, most urgent first: what every front end lists.
+
+        Labels the lexicons flag and labels only the data signals flag, each with its score,
+        severity and reasons (see :mod:`labelreview.queue`). Computed on first use.
+        """
+        if self._flags is None:
+            self._flags = list(self.queue().entries)
+        return self._flags
+
     def flag(self, label: str) -> Flag | None:
-        return self._by_label.get(label)
+        """The queue entry for ``label``, or None when nothing flags it."""
+        return self.queue().by_label.get(label)
 
     def state(self) -> LogState:
         """The fold over the log (re-read unless this session holds the writer)."""

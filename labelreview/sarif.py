@@ -4,11 +4,13 @@ SARIF (Static Analysis Results Interchange Format) is an OASIS standard, version
 
 - ``tool.driver.rules``: one rule per lexicon category (``id`` the category id,
   ``shortDescription`` its title, ``fullDescription`` its rationale, ``defaultConfiguration.level``
-  from its severity: high -> ``error``, medium -> ``warning``, low -> ``note``).
-- ``results``: one per unresolved flag and category, pointing at the taxonomy file (or the
-  annotation file for labels only the annotations use), relative to the dataset folder
-  (``uriBaseId`` ``DATASETROOT``), with the label's line where the file is text.
-  ``partialFingerprints["labelCategory/v1"]`` is stable per label and category, so CI systems can
+  from its severity: high -> ``error``, medium -> ``warning``, low -> ``note``), then one per
+  data signal (``data-signal/contested``, ``data-signal/disparity``,
+  ``data-signal/annotator_skew``; level from ``queue.severity``).
+- ``results``: one per unresolved flag and category or data signal, pointing at the taxonomy
+  file (or the annotation file for labels only the annotations use), relative to the dataset
+  folder (``uriBaseId`` ``DATASETROOT``), with the label's line where the file is text.
+  ``partialFingerprints["labelCategory/v1"]`` is stable per label and rule, so CI systems can
   follow a result across runs.
 - ``invocations[0]``: ``executionSuccessful`` (the check ran; findings do not make it false), the
   exit code, and the gate's other reasons to fail (log, lexicon, sign-off) as notifications.
@@ -22,13 +24,16 @@ import json
 from pathlib import Path
 from typing import Any
 
-from labelreview.gate import GateResult, label_fingerprint
+from labelreview.gate import GateFlag, GateResult, label_fingerprint
+from labelreview.queue import DATA_SIGNALS, SIGNAL_TITLES
 
 SARIF_VERSION = "2.1.0"
 #: The OASIS-published schema location for SARIF 2.1.0 (recalled from memory).
 SARIF_SCHEMA = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/os/schemas/sarif-schema-2.1.0.json"
 ROOT_BASE_ID = "DATASETROOT"
 FINGERPRINT_KEY = "labelCategory/v1"
+SIGNAL_RULE_PREFIX = "data-signal/"
+"""Rule ids of the data signals: ``data-signal/contested`` and so on."""
 
 NOTIFICATIONS: dict[str, str] = {
     "gate-log": "The decision log does not verify (tampered, torn or cut short).",
@@ -43,6 +48,19 @@ LEVELS: dict[str, str] = {"high": "error", "medium": "warning", "low": "note"}
 
 def _text(value: str) -> dict[str, str]:
     return {"text": value}
+
+
+def _locate(entry: dict[str, Any], gate_flag: GateFlag) -> None:
+    location = gate_flag.location
+    if location is None:
+        return
+    artifact: dict[str, Any] = {"uri": location.uri}
+    if location.relative:
+        artifact["uriBaseId"] = ROOT_BASE_ID
+    physical: dict[str, Any] = {"artifactLocation": artifact}
+    if location.line is not None:
+        physical["region"] = {"startLine": location.line}
+    entry["locations"] = [{"physicalLocation": physical}]
 
 
 def gate_sarif(result: GateResult) -> dict[str, Any]:
@@ -69,6 +87,20 @@ def gate_sarif(result: GateResult) -> dict[str, Any]:
                 "properties": {"severity": category.severity, "source": category.source},
             }
         )
+    for name in DATA_SIGNALS:
+        title, description = SIGNAL_TITLES[name]
+        level = result.signal_severity.get(name, "low")
+        rule_index[f"{SIGNAL_RULE_PREFIX}{name}"] = len(rules)
+        rules.append(
+            {
+                "id": f"{SIGNAL_RULE_PREFIX}{name}",
+                "name": "".join(part.capitalize() for part in name.split("_")),
+                "shortDescription": _text(title),
+                "fullDescription": _text(description),
+                "defaultConfiguration": {"level": LEVELS.get(level, "note")},
+                "properties": {"severity": level, "source": "labelreview data signals"},
+            }
+        )
     results = []
     for gate_flag in result.unresolved:
         flag = gate_flag.flag
@@ -92,15 +124,25 @@ def gate_sarif(result: GateResult) -> dict[str, Any]:
             }
             if category in rule_index:
                 entry["ruleIndex"] = rule_index[category]
-            location = gate_flag.location
-            if location is not None:
-                artifact: dict[str, Any] = {"uri": location.uri}
-                if location.relative:
-                    artifact["uriBaseId"] = ROOT_BASE_ID
-                physical: dict[str, Any] = {"artifactLocation": artifact}
-                if location.line is not None:
-                    physical["region"] = {"startLine": location.line}
-                entry["locations"] = [{"physicalLocation": physical}]
+            _locate(entry, gate_flag)
+            results.append(entry)
+        for name, severity, reasons in gate_flag.by_signal(result.signal_severity):
+            rule_id = f"{SIGNAL_RULE_PREFIX}{name}"
+            entry = {
+                "ruleId": rule_id,
+                "ruleIndex": rule_index[rule_id],
+                "level": LEVELS.get(severity, "note"),
+                "message": _text(f"'{flag.label}' is unresolved: " + "; ".join(reasons) + "."),
+                "partialFingerprints": {FINGERPRINT_KEY: label_fingerprint(flag.label, rule_id)},
+                "properties": {
+                    "label": flag.label,
+                    "severity": severity,
+                    "score": flag.score,
+                    "annotations": flag.annotations,
+                    "items": flag.items,
+                },
+            }
+            _locate(entry, gate_flag)
             results.append(entry)
     notifications = [
         {"level": "error", "message": _text(reason), "descriptor": {"id": f"gate-{kind}"}}

@@ -37,8 +37,10 @@ def _register() -> None:
     for command in (scan, lexicon, init, demo, decide, log):
         cli.add_command(command)
     from labelreview.cli.agreement import agreement
+    from labelreview.cli.queue import queue
 
     cli.add_command(agreement)
+    cli.add_command(queue)
     from labelreview.cli.apply import apply
     from labelreview.cli.export import export
 

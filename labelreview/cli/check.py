@@ -99,7 +99,8 @@ def check(
 
 
 def gate_text(result: GateResult) -> str:
-    """Verdict first, then the unresolved flags, the log, lexicon and sign-off lines, cautions."""
+    """Verdict first, then the unresolved queue entries (score, categories, data signals,
+    reasons), the log, lexicon and sign-off lines, the queue's notes, cautions."""
     lines = textwrap.wrap(result.verdict(), width=100, subsequent_indent="      ")
     if result.unresolved:
         lines.append("")
@@ -110,8 +111,11 @@ def gate_text(result: GateResult) -> str:
             if gate_flag.location is not None:
                 loc = gate_flag.location
                 where = f" ({loc.path.name}" + (f" line {loc.line})" if loc.line else ")")
-            lines.append(f"  {flag.severity:6}  {flag.label}{where}")
-            lines.append(f"          categories: {', '.join(flag.categories)}")
+            lines.append(f"  {flag.severity:6}  {flag.label}{where}  score {flag.score:.1f}")
+            if flag.categories:
+                lines.append(f"          categories: {', '.join(flag.categories)}")
+            if flag.signal_names:
+                lines.append(f"          data signals: {', '.join(flag.signal_names)}")
             for reason in flag.reasons:
                 lines.extend(
                     textwrap.wrap(
@@ -134,6 +138,10 @@ def gate_text(result: GateResult) -> str:
             f"with lexicon {change.lexicon_hash[:19]}"
         )
     lines.append(f"sign-off: {result.signoff.summary()}")
+    for text in result.notes:
+        lines.extend(
+            textwrap.wrap(text, width=100, initial_indent="queue: ", subsequent_indent="       ")
+        )
     lines.append("")
-    lines.extend(cautions_text())
+    lines.extend(cautions_text(result.cautions))
     return "\n".join(lines)

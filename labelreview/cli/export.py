@@ -42,10 +42,12 @@ def export(
       labelreview export [DATASET_DIR] --to audit.html
       labelreview export [DATASET_DIR] --to audit.csv --force
 
-    The report holds the input fingerprints, the lexicon hash, counts by category, severity
-    and action, every decision with its reason, curator and time (revoked ones marked),
-    undecided flags, the agreement summary where defined, sign-offs and whether they still
-    hold, the log's verification status and the cautions. The HTML page is self-contained.
+    The report holds the input fingerprints, the lexicon hash, counts by category, severity,
+    data signal and action, every decision with its reason, curator and time (revoked ones
+    marked), the undecided entries of the review queue with their scores and reasons, the
+    queue's formula and weights, the agreement summary where defined, sign-offs and whether
+    they still hold, the log's verification status and the cautions. The HTML page is
+    self-contained.
     """
     from labelreview.export import agreement_summary, export_report, format_for
     from labelreview.review import ReviewSession
@@ -55,7 +57,13 @@ def export(
     session = ReviewSession.from_dataset(dataset)
     for line in session.scanned.notes:
         note(line if line.startswith("warning:") else f"note: {line}")
-    agreement = None if no_agreement else agreement_summary(dataset.annotations, dataset.config)
+    agreement = None
+    if not no_agreement:
+        agreement = agreement_summary(
+            dataset.annotations, dataset.config, result=session.signals().agreement
+        )
+    for line in session.queue().notes:
+        note(f"note: {line}")
     if agreement is not None and not agreement.get("available"):
         note(f"note: {agreement.get('note')}")
     path, report = export_report(session, target, agreement=agreement, fail_on=fail_on, force=force)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import shutil
 import textwrap
+from collections.abc import Sequence
 from pathlib import Path
 
 import click
@@ -117,10 +118,10 @@ def scan_table(result: ScanResult) -> str:
     return "\n".join(lines)
 
 
-def cautions_text() -> list[str]:
+def cautions_text(cautions: Sequence[str] = CAUTIONS) -> list[str]:
     """The cautions, wrapped, one ``note:`` paragraph each."""
     lines: list[str] = []
-    for caution in CAUTIONS:
+    for caution in cautions:
         lines.extend(
             textwrap.wrap(caution, width=100, initial_indent="note: ", subsequent_indent="      ")
         )

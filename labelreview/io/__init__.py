@@ -15,7 +15,7 @@ from labelreview.io._annotations import (
     load_annotations,
 )
 from labelreview.io._common import MAX_FIELD_CHARS
-from labelreview.io._items import load_items
+from labelreview.io._items import load_items, load_items_with_context
 from labelreview.io._taxonomy import TAXONOMY_FORMATS, load_taxonomy
 
 __all__ = [
@@ -28,5 +28,6 @@ __all__ = [
     "detect_format",
     "load_annotations",
     "load_items",
+    "load_items_with_context",
     "load_taxonomy",
 ]

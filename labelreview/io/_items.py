@@ -3,9 +3,13 @@
 Items are what was labelled (photos, sentences...). labelreview reads their text (to scan captions
 as well as labels) and a preview reference (a file name or address to show a curator), and
 nothing else, except attribute columns the dataset config lists as given by the people
-themselves, with consent (``consented: true`` and ``self_reported: true``). Any other column of the
-file is left unread: labelreview never uses demographic attributes without consent and never
-infers them.
+themselves, with consent (``consented: true`` and ``self_reported: true``). labelreview never uses
+demographic attributes without consent and never infers them.
+
+Other columns are read only when asked for as *context* (:func:`load_items_with_context`): the
+proxy check (``labelreview.signals``) measures, column by column, how much each one says about a
+consented attribute, so a curator learns which columns stand in for it. Their values are never
+used to guess anything about a person.
 """
 
 from __future__ import annotations
@@ -79,7 +83,22 @@ def load_items(
     attributes: Sequence[AttributeSpec] = (),
     encoding: str | None = None,
 ) -> pd.DataFrame:
-    """Read the item table.
+    """Read the item table (see :func:`load_items_with_context` for the arguments)."""
+    return load_items_with_context(path, columns=columns, attributes=attributes, encoding=encoding)[
+        0
+    ]
+
+
+def load_items_with_context(
+    path: Path,
+    *,
+    columns: Mapping[str, str] | None = None,
+    attributes: Sequence[AttributeSpec] = (),
+    encoding: str | None = None,
+    context: Sequence[str] | None = (),
+    context_key: str = "signals.proxy_columns",
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Read the item table, and the context columns the proxy check needs.
 
     Args:
         path: CSV, TSV, JSON Lines, JSON list or Parquet; only read.
@@ -89,10 +108,14 @@ def load_items(
         attributes: Attribute columns to keep; each must be ``consented`` and
             ``self_reported``.
         encoding: Text encoding; ``None`` means UTF-8 (a byte order mark is dropped).
+        context: Other columns to return as context, by name; None: every column that is
+            neither a role nor an attribute; empty: none.
+        context_key: The config key that named ``context`` (for the error message).
 
     Returns:
-        String columns ``item``, then ``text`` and ``preview`` where present, then the
-        attribute columns under their own names; one row per item.
+        (items, context). ``items``: string columns ``item``, then ``text`` and ``preview``
+        where present, then the attribute columns under their own names; one row per item.
+        ``context``: the context columns as text, same rows and order.
 
     Raises:
         ConfigError: An attribute is not marked consented and self-reported, or repeats a role
@@ -182,4 +205,24 @@ def load_items(
             line=table.locate(row),
             column=chosen["item"],
         )
-    return out.reset_index(drop=True)
+    used = set(chosen.values()) | {a.column for a in attributes}
+    if context is None:
+        wanted = [c for c in table.columns if c not in used]
+    else:
+        wanted = list(dict.fromkeys(context))
+        for name in wanted:
+            if name not in table.columns:
+                raise LoadError(
+                    f"column '{name}' (listed in {context_key}) is not in the file",
+                    source=str(path),
+                    line=1,
+                )
+            if name in used:
+                raise ConfigError(
+                    f"column '{name}' (listed in {context_key}) is an item role or an "
+                    "attribute, not a context column",
+                    source=str(path),
+                    column=name,
+                )
+    extra = pd.DataFrame({name: as_text(raw[name]) for name in wanted}, index=out.index)
+    return out.reset_index(drop=True), extra.reset_index(drop=True)

@@ -107,13 +107,19 @@ def test_check_json_is_a_stable_object(folder: Path):
         "require_signoff",
         "signoff",
         "counts",
+        "notes",
         "cautions",
     }
     assert data["verdict"] == "fail" and data["exit_code"] == 1 and data["fail_on"] == "high"
     assert {u["severity"] for u in data["unresolved"]} == {"high"}
     assert len(data["unresolved"]) == data["counts"]["flags_by_severity"]["high"] == 6
     assert data["unresolved"][0]["location"]["uri"] == "taxonomy.csv"
-    assert data["cautions"] == list(CAUTIONS)
+    # Ranked by the queue's score; each entry carries it and its reasons as objects.
+    scores = [u["score"] for u in data["unresolved"]]
+    assert scores == sorted(scores, reverse=True)
+    assert {r["signal"] for r in data["unresolved"][0]["evidence"]} >= {"lexicon", "contested"}
+    assert data["cautions"] == list(CAUTIONS)  # no attributes here: no disparity cautions
+    assert any("never infers attributes" in n for n in data["notes"])
 
 
 def test_check_sarif_validates_against_the_schema(folder: Path):
@@ -242,7 +248,8 @@ def test_compare_identical_decided_versions(tmp_path: Path):
     result = run("compare", str(old), str(new), "--fail-on-new")
     assert result.exit_code == 0, result.stdout + result.stderr
     assert result.stdout.startswith("nothing in NEW needs review")
-    assert "Decisions that carry over (27):" in result.stdout
+    # 27 lexicon flags plus objects/boats/trawler, which only the data flag (contested)
+    assert "Decisions that carry over (28):" in result.stdout
     assert "Labels added: none" in result.stdout
 
 
@@ -260,7 +267,7 @@ def test_compare_new_flagged_label(tmp_path: Path):
     assert data["labels_added"] == ["people/looks/shifty_stranger"]
     assert [f["label"] for f in data["new_findings"]] == ["people/looks/shifty_stranger"]
     assert [r["kind"] for r in data["needs_review"]] == ["no_decision"]
-    assert len(data["carried_decisions"]) == 27 and data["agreement"]["checked"] is True
+    assert len(data["carried_decisions"]) == 28 and data["agreement"]["checked"] is True
 
 
 def test_compare_single_annotator_notes_agreement_skipped(tmp_path: Path):

@@ -133,7 +133,8 @@ def test_report_holds_every_section(session: ReviewSession):
     report = report_for(session)
     assert list(report) == [
         "report", "report_version", "tool", "generated", "dataset", "lexicon_hash", "log",
-        "gate", "counts", "decisions", "unresolved", "agreement", "signoffs", "cautions",
+        "gate", "counts", "decisions", "unresolved", "queue", "agreement", "signoffs",
+        "cautions",
     ]  # fmt: skip
     assert report["dataset"]["fingerprint"] == session.fingerprint().digest
     assert {f["role"] for f in report["dataset"]["files"]} == {"config", "annotations", "taxonomy"}
@@ -149,13 +150,21 @@ def test_report_holds_every_section(session: ReviewSession):
         "needs a second look at the ward photos",
     )
     assert next(d for d in report["decisions"] if d["seq"] == 3)["superseded_by"] == 7
-    assert report["unresolved"] == []  # all four flags decided
+    # The four lexicon flags are decided; the queue adds one label only the data flag: with
+    # agreement.min_items 2 in this fixture, 'people/passengers' is contested (alpha -0.071).
+    assert [
+        (u["label"], u["severity"], u["signals"], u["at_gate"]) for u in report["unresolved"]
+    ] == [("people/passengers", "low", ["contested"], False)]
+    assert report["queue"]["data_only"] == 1 and report["queue"]["entries"] == 5
     counts = report["counts"]
     assert {r["action"]: r["decisions"] for r in counts["by_action"]} == {
         "accept": 0, "rename": 2, "retire": 2, "superseded": 1, "revoked": 1,
     }  # fmt: skip
     assert {r["severity"]: r["flags"] for r in counts["by_severity"]} == {
-        "high": 1, "medium": 2, "low": 1,
+        "high": 1, "medium": 2, "low": 2,
+    }  # fmt: skip
+    assert {r["signal"]: (r["flags"], r["open"]) for r in counts["by_signal"]} == {
+        "contested": (3, 1), "disparity": (0, 0), "annotator_skew": (0, 0),
     }  # fmt: skip
     assert [s["valid"] for s in report["signoffs"]] == [True]
 
@@ -263,7 +272,10 @@ def facts(report: dict[str, Any]) -> list[str]:
     for d in report["decisions"]:
         out += [d["label"], d["reason"], d["curator"], d["time"]]
     for u in report["unresolved"]:
-        out += [u["label"], *u["reasons"]]
+        out += [u["label"], str(u["score"]), *u["reasons"]]
+    queue = report["queue"]
+    out += [queue["formula"], *queue["notes"], *queue["attributes"]]
+    out += [p["column"] for p in queue["proxies"]]
     for s in report["signoffs"]:
         out += [s["approver"], s["statement"], s["time"]]
     agreement = report["agreement"]

@@ -34,12 +34,16 @@ def session(sample_copy: Path, tmp_path: Path) -> ReviewSession:
     return ReviewSession.open(folder, curator="mira")
 
 
-def test_flags_come_from_the_scan_most_severe_first(session: ReviewSession):
-    ranks = {"high": 3, "medium": 2, "low": 1}
-    severities = [ranks[f.severity] for f in session.flags]
-    assert severities == sorted(severities, reverse=True)
+def test_flags_are_the_ranked_queue_highest_score_first(session: ReviewSession):
+    # The queue replaced the scan's severity order: every lexicon flag is in it, plus labels
+    # only the data signals flag, ranked by score (see labelreview/queue.py).
+    scores = [f.score for f in session.flags]
+    assert scores == sorted(scores, reverse=True)
     assert FLAGGED in {f.label for f in session.flags}
+    lexicon = {f.label for f in session.scanned.result.findings}
+    assert lexicon <= {f.label for f in session.flags}
     assert session.progress() == (0, len(session.flags))
+    assert session.flags is session.flags  # computed once per session
 
 
 @pytest.mark.parametrize(

@@ -80,14 +80,20 @@ def test_rules_results_and_levels(folder: Path):
     driver = run["tool"]["driver"]
     assert driver["name"] == "labelreview" and driver["version"]
     rules = driver["rules"]
-    assert [r["id"] for r in rules] == sorted(session.scanned.lexicon.categories)
+    signal_rules = ["data-signal/contested", "data-signal/disparity", "data-signal/annotator_skew"]
+    assert [r["id"] for r in rules] == sorted(session.scanned.lexicon.categories) + signal_rules
     mapping = {"high": "error", "medium": "warning", "low": "note"}
-    for rule in rules:
+    for rule in rules[: -len(signal_rules)]:
         category = session.scanned.lexicon.categories[rule["id"]]
         assert rule["defaultConfiguration"]["level"] == mapping[category.severity]
         assert rule["shortDescription"]["text"] == category.title
+    # data signals take their level from queue.severity (defaults: low, medium, low)
+    assert [r["defaultConfiguration"]["level"] for r in rules[-3:]] == ["note", "warning", "note"]
     results = run["results"]
-    assert len(results) == sum(len(g.flag.categories) for g in result.unresolved)
+    assert len(results) == sum(
+        len(g.flag.categories) + len(g.flag.signal_names) for g in result.unresolved
+    )
+    assert {r["ruleId"] for r in results} >= {"data-signal/contested", "data-signal/annotator_skew"}
     for item in results:
         assert item["level"] in ("none", "note", "warning", "error")
         assert rules[item["ruleIndex"]]["id"] == item["ruleId"]
