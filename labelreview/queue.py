@@ -198,7 +198,7 @@ def contested_reason(c: ContestedLabel) -> Reason:
     return Reason("contested", text, round(c.alpha, 4))
 
 
-def disparity_reason(d: DisparityResult, threshold: float) -> Reason:
+def disparity_reason(d: DisparityResult, threshold: float, k: int) -> Reason:
     high = d.rate(d.highest or "") or 0.0
     low = d.rate(d.lowest or "") or 0.0
     ratio = d.ratio if d.ratio is not None else 0.0
@@ -210,8 +210,8 @@ def disparity_reason(d: DisparityResult, threshold: float) -> Reason:
         f"{format_p(d.q)}, Cramér's V {d.cramers_v or 0.0:.2f}; {d.items} items in "
         f"{len(d.groups)} groups"
     )
-    if d.held_back:
-        text += f" ({d.held_back} small group(s) held back)"
+    if d.pooled:
+        text += f" ({d.pooled} group(s) under {k} items pooled with another)"
     return Reason("disparity", text, round(ratio, 4))
 
 
@@ -300,7 +300,10 @@ def build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -
             found = sorted(disparity[label], key=lambda d: (d.ratio or 0.0, d.attribute))
             severities.append(config.severity["disparity"])  # type: ignore[arg-type]
             parts["disparity"] = max(1.0 - (d.ratio or 0.0) for d in found)
-            evidence.extend(disparity_reason(d, settings.disparity_ratio) for d in found)
+            evidence.extend(
+                disparity_reason(d, settings.disparity_ratio, settings.min_group_size)
+                for d in found
+            )
             for d in found:
                 evidence.extend(proxy_reason(p) for p in proxies.get(d.attribute, []))
             data["disparity"] = [d.to_dict() for d in found]

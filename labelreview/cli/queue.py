@@ -77,10 +77,9 @@ def queue(
     if open_only:
         entries = [f for f in entries if state.status(f.label) == "open"]
     if fmt == "json":
-        data = built.to_dict(status=state.status)
+        data = {"dataset": session.config.name, **built.to_dict(status=state.status)}
         chosen = {f.label for f in (entries if top is None else entries[:top])}
         data["entries"] = [e for e in data["entries"] if e["label"] in chosen]
-        data["dataset"] = session.config.name
         click.echo(json.dumps(data, indent=2, ensure_ascii=False, allow_nan=False))
     else:
         click.echo(queue_table(session, built, entries, top))
@@ -152,16 +151,17 @@ def disparity_section(signals: DataSignals) -> list[str]:
     names = ", ".join(a.attribute for a in signals.attributes)
     lines.append(f"Group disparity across consented, self-reported attributes ({names}):")
     for summary in signals.attributes:
-        held = f", {summary.held_back} small group(s) held back" if summary.held_back else ""
+        held = f", {summary.pooled} small group(s) pooled" if summary.pooled else ""
         lines.append(
             f"  {summary.attribute}: {summary.groups_shown} groups shown, {summary.items} items"
             f"{held}; {summary.tests} labels tested, {summary.flagged} flagged"
         )
-    shown = signals.disparity_to_show()
+    candidates = signals.disparity_to_show()
+    shown = [d for d in candidates if d.flagged]
     if not shown:
         lines.append(
-            "  no label is given at a lowest-to-highest rate ratio below "
-            f"{signals.settings.disparity_ratio:g} in any attribute"
+            "  no label was flagged: none is given at a lowest-to-highest rate ratio below "
+            f"{signals.settings.disparity_ratio:g} with a significant difference"
         )
     for d in shown:
         verdict = "FLAGGED" if d.flagged else "not flagged"
@@ -177,6 +177,18 @@ def disparity_section(signals: DataSignals) -> list[str]:
         lines.extend(_wrap(stats, "      ", "      "))
         if d.reason:
             lines.extend(_wrap(d.reason, "      why not flagged: ", " " * 8))
+    others = len(candidates) - len(shown)
+    if others:
+        lines.extend(
+            _wrap(
+                f"{others} more (label, attribute) pairs have a ratio below "
+                f"{signals.settings.disparity_ratio:g} but were not flagged: too few items for "
+                "the test, or not significant after the correction (--format json lists them "
+                "with the reason).",
+                "  ",
+                "  ",
+            )
+        )
     lines.append("  Cautions for these figures:")
     for caution in signals.cautions():
         lines.extend(_wrap(caution, "  - ", "    "))
@@ -203,9 +215,16 @@ def proxy_section(signals: DataSignals) -> list[str]:
         )
     if not flagged:
         lines.append("  none found")
-    checked = sorted({p.column for p in signals.proxies if p.reason is None and not p.flagged})
-    if checked:
-        lines.extend(_wrap(", ".join(checked), "  checked, not standing in: ", "    "))
+    for attribute in signals.attribute_names:
+        checked = [
+            p.column
+            for p in signals.proxies
+            if p.attribute == attribute and p.reason is None and not p.flagged
+        ]
+        if checked:
+            lines.extend(
+                _wrap(", ".join(sorted(checked)), f"  not standing in for {attribute}: ", "    ")
+            )
     for p in signals.proxies:
         if p.reason is not None:
             lines.extend(
@@ -222,7 +241,7 @@ def annotator_section(signals: DataSignals) -> list[str]:
         "Annotators (alpha without them, its change; labels they use unlike the others on the "
         "same items):"
     ]
-    width = min(max(len(a.annotator) for a in signals.annotators), 24)
+    width = max(min(max(len(a.annotator) for a in signals.annotators), 24), len("ANNOTATOR"))
     lines.append(f"  {'ANNOTATOR':{width}}  {'ITEMS':>6}  {'WITHOUT':>7}  {'CHANGE':>7}  SKEWED ON")
     listed = signals.annotators[:ANNOTATOR_ROWS]
     for a in listed:

@@ -16,9 +16,13 @@ Only for attribute columns the dataset config marks as given with consent and se
   expected count reaches ``signals.min_expected`` (5, after Cochran's rule of thumb as we
   recall it). Counting items rather than judgements keeps annotations of the same item from
   passing as independent evidence.
-- **small groups**: groups with fewer than ``signals.min_group_size`` (k) items are never shown
-  or tested. When exactly one group is held back, the smallest remaining group is held back too,
-  so the small one cannot be worked out by subtracting the shown groups from the label's total.
+- **small groups**: a group with fewer than ``signals.min_group_size`` (k) items is never shown
+  or tested on its own, and its name is not shown. Small groups are pooled: two or more whose
+  items add up to k or more become one group, ``other (N smaller groups)``; otherwise the pool
+  joins the group that sorts next to the first small one (for age bands, the adjacent band),
+  shown as ``65-84 + 1 smaller group``. Pooling rather than dropping keeps every item in the
+  totals, so a small group's figures cannot be worked out by subtracting the groups shown from
+  the label's total.
 
 A flag needs all three: the test run, q <= ``signals.fdr``, and the ratio below the threshold.
 """
@@ -58,8 +62,8 @@ class DisparityResult:
     attribute: str
     groups: tuple[GroupRate, ...]
     """The groups shown (k or more items), in natural order of their names."""
-    held_back: int
-    """Groups not shown: fewer than k items, or held back with one that had."""
+    pooled: int
+    """Groups with fewer than k items, pooled with another group and not shown by name."""
     items: int
     """Items in the groups shown."""
     ratio: float | None
@@ -96,7 +100,7 @@ class DisparityResult:
             "lowest": self.lowest,
             "highest": self.highest,
             "groups": [g.to_dict() for g in self.groups],
-            "held_back": self.held_back,
+            "pooled": self.pooled,
             "items": self.items,
             "tested": self.tested,
             "chi2": num(self.chi2),
@@ -115,7 +119,7 @@ class AttributeSummary:
 
     attribute: str
     groups_shown: int
-    held_back: int
+    pooled: int
     items: int
     """Items in the groups shown."""
     tests: int
@@ -126,7 +130,7 @@ class AttributeSummary:
         return {
             "attribute": self.attribute,
             "groups_shown": self.groups_shown,
-            "held_back": self.held_back,
+            "pooled": self.pooled,
             "items": self.items,
             "tests": self.tests,
             "flagged": self.flagged,
@@ -154,6 +158,45 @@ def item_groups(
     group = np.where(position >= 0, codes[np.maximum(position, 0)], -1).astype(np.int64)
     missing = int((position < 0).sum())
     return group, [str(n) for n in names], missing
+
+
+def pool_small_groups(
+    group: np.ndarray, names: list[str], k: int
+) -> tuple[np.ndarray, list[str], int]:
+    """Pool groups with fewer than ``k`` items (see the module docstring).
+
+    Args:
+        group: Group code per item (-1: no value).
+        names: Group names by code.
+        k: The smallest group shown on its own.
+
+    Returns:
+        (new codes per item, new names, how many small groups were pooled). Groups that end up
+        with no item keep their code and simply have size 0.
+    """
+    sizes = np.bincount(group[group >= 0], minlength=len(names))
+    small = [g for g in range(len(names)) if 0 < sizes[g] < k]
+    if not small:
+        return group, names, 0
+    big = [g for g in range(len(names)) if sizes[g] >= k]
+    names = list(names)
+    remap = np.arange(len(names) + 1, dtype=np.int64)
+    pooled = int(sum(sizes[g] for g in small))
+    n = len(small)
+    if n >= 2 and pooled >= k:
+        names.append(f"other ({n} smaller groups)")
+        target = len(names) - 1
+    elif big:
+        ranked = sorted([*big, small[0]], key=lambda g: natural_key(names[g]))
+        at = ranked.index(small[0])
+        target = ranked[at - 1] if at > 0 else ranked[1]
+        names[target] = f"{names[target]} + {n} smaller group{'s' if n > 1 else ''}"
+    else:
+        target = -1  # nothing big enough to join: the items are left out
+    for g in small:
+        remap[g] = target
+    codes = np.where(group >= 0, remap[np.maximum(group, 0)], -1)
+    return codes, names, n
 
 
 def group_disparity(
@@ -189,29 +232,23 @@ def group_disparity(
                 "leaves them out"
             )
             reported_missing = True
+        group, names, pooled = pool_small_groups(group, names, k)
         sizes = np.bincount(group[group >= 0], minlength=len(names))
-        present = sizes > 0
-        small = present & (sizes < k)
-        kept = present & ~small
-        if int(small.sum()) == 1 and kept.any():
-            # One hidden group could be recovered by subtraction; hide the next smallest too.
-            candidates = np.flatnonzero(kept)
-            kept[candidates[np.argmin(sizes[candidates])]] = False
-        held_back = int((present & ~kept).sum())
-        order = sorted(np.flatnonzero(kept).tolist(), key=lambda g: natural_key(names[g]))
+        order = sorted(np.flatnonzero(sizes > 0).tolist(), key=lambda g: natural_key(names[g]))
         summary: dict[str, Any] = {
             "attribute": attribute,
             "groups_shown": len(order),
-            "held_back": held_back,
+            "pooled": pooled,
             "items": int(sizes[order].sum()) if order else 0,
             "tests": 0,
             "flagged": 0,
         }
         summaries.append(summary)
-        if held_back:
+        if pooled:
             notes.append(
-                f"{attribute}: {held_back} group(s) held back (fewer than {k} items, or held "
-                "back with such a group so it cannot be worked out by subtraction)"
+                f"{attribute}: {pooled} group(s) with fewer than {k} items are not shown on "
+                "their own; they are pooled with another group (left out when none is large "
+                "enough)"
             )
         if len(order) < 2:
             notes.append(
@@ -256,7 +293,7 @@ def group_disparity(
                         GroupRate(names[g], int(sizes[g]), float(row[i]))
                         for i, g in enumerate(order)
                     ),
-                    "held_back": held_back,
+                    "pooled": pooled,
                     "items": int(group_items.sum()),
                     "ratio": float(ratios[code]),
                     "lowest": names[order[int(np.argmin(row))]],

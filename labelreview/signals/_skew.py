@@ -15,6 +15,11 @@ higher (1 means the same). A pair is flagged when q <= ``signals.fdr``, that rat
 ``signals.skew_ratio`` and the larger of k and E is at least 5. Annotators need
 ``signals.skew_min_items`` comparable items to be tested.
 
+A heavy user of a label raises "the others' rate" for everyone who shares items with them, and
+would make them all look like under-users. So it runs twice: the first pass finds each label's
+heavy users (flagged, giving it more than expected); the second measures every annotator of that
+label against the others *without* those heavy users. The flags come from the second pass.
+
 The leave-one-out change of alpha comes from the agreement engine (alpha with the annotator left
 out, minus alpha with everyone; positive: agreement rises without them).
 """
@@ -98,27 +103,16 @@ class AnnotatorSummary:
         }
 
 
-def annotator_skew(
-    judgements: Judgements,
-    settings: SignalsConfig,
-    agreement: AgreementResult | None = None,
-) -> tuple[list[SkewResult], list[AnnotatorSummary], int]:
-    """Flagged (annotator, label) pairs, strongest first; a summary per annotator; tests run.
-
-    Args:
-        judgements: The coded annotation frame.
-        settings: Thresholds.
-        agreement: The agreement report, for the leave-one-out change (optional).
-    """
-    j = judgements
+def _first_pass(j: Judgements) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(given, expected, items) as annotators x labels, the others being everyone else."""
     n_ann, n_lab = j.n_annotators, j.n_labels
-    loo = {a.annotator: a for a in agreement.per_annotator} if agreement is not None else {}
     comparable_pair = j.judges[j.pair_item] >= 2
     n_items = np.bincount(j.pair_annotator[comparable_pair], minlength=n_ann)
     rows = j.judges[j.item] >= 2
     item, ann, lab = j.item[rows], j.annotator[rows], j.label[rows]
     share = 1.0 / (j.judges[item] - 1.0)
-    # Others' share per (item, label), summed over each annotator's comparable items.
+    # Everyone's share per (item, label), summed over each annotator's comparable items; the
+    # annotator's own contribution is taken off afterwards.
     per_item = sp.csr_matrix((share, (item, lab)), shape=(j.n_items, n_lab))
     judged = sp.csr_matrix(
         (
@@ -134,9 +128,40 @@ def annotator_skew(
     expected = np.maximum(everyone - own, 0.0)
     given = np.bincount(ann * n_lab + lab, minlength=n_ann * n_lab).reshape(n_ann, n_lab)
     n = np.broadcast_to(n_items[:, None], given.shape).astype(float)
+    return given.astype(float), expected, n
+
+
+def _recount(
+    j: Judgements, label: int, excluded: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(given, expected, items) per annotator for one label, the others leaving out
+    ``excluded`` annotators (and the annotator themself)."""
+    n_ann = j.n_annotators
+    pair_item, pair_ann = j.pair_item, j.pair_annotator
+    in_ref = ~excluded[pair_ann]
+    ref_judges = np.bincount(pair_item[in_ref], minlength=j.n_items)
+    rows = j.label == label
+    item_l, ann_l = j.item[rows], j.annotator[rows]
+    ref_gave = np.bincount(item_l[~excluded[ann_l]], minlength=j.n_items)
+    pair_keys = pair_item * n_ann + pair_ann  # sorted: pairs come from np.unique
+    gave = np.zeros(pair_keys.size, dtype=bool)
+    gave[np.searchsorted(pair_keys, item_l * n_ann + ann_l)] = True
+    others = ref_judges[pair_item] - in_ref
+    gave_others = ref_gave[pair_item] - (in_ref & gave)
+    valid = others >= 1
+    share = np.where(valid, gave_others / np.maximum(others, 1), 0.0)
+    n = np.bincount(pair_ann[valid], minlength=n_ann).astype(float)
+    expected = np.bincount(pair_ann[valid], weights=share[valid], minlength=n_ann)
+    given = np.bincount(pair_ann[valid & gave], minlength=n_ann).astype(float)
+    return given, expected, n
+
+
+def _test(
+    given: np.ndarray, expected: np.ndarray, n: np.ndarray, settings: SignalsConfig
+) -> dict[str, np.ndarray]:
     tested = (n >= settings.skew_min_items) & ((given + expected) > 0)
     a_idx, l_idx = np.nonzero(tested)
-    k = given[a_idx, l_idx].astype(float)
+    k = given[a_idx, l_idx]
     e = expected[a_idx, l_idx]
     nn = n[a_idx, l_idx]
     p = binomial_two_sided(k, nn, e / nn)
@@ -144,6 +169,57 @@ def annotator_skew(
     high = np.maximum(k, e)
     ratio = np.where(high > 0, np.minimum(k, e) / np.where(high > 0, high, 1.0), 1.0)
     flagged = (q <= settings.fdr) & (ratio < settings.skew_ratio) & (high >= MIN_COUNT)
+    return {
+        "a": a_idx,
+        "l": l_idx,
+        "k": k,
+        "e": e,
+        "n": nn,
+        "p": p,
+        "q": q,
+        "ratio": ratio,
+        "flagged": flagged,
+    }
+
+
+def annotator_skew(
+    judgements: Judgements,
+    settings: SignalsConfig,
+    agreement: AgreementResult | None = None,
+) -> tuple[list[SkewResult], list[AnnotatorSummary], int]:
+    """Flagged (annotator, label) pairs, strongest first; a summary per annotator; tests run.
+
+    Two passes: the first compares each annotator with everyone else on the same items and
+    finds the heavy users of each label (flagged, giving it more than expected). The second
+    compares every annotator of such a label with the others minus those heavy users, so one
+    heavy user does not make everyone else look as if they under-use the label. The
+    Benjamini-Hochberg correction runs over the second pass's tests.
+
+    Args:
+        judgements: The coded annotation frame.
+        settings: Thresholds.
+        agreement: The agreement report, for the leave-one-out change (optional).
+    """
+    j = judgements
+    loo = {a.annotator: a for a in agreement.per_annotator} if agreement is not None else {}
+    given, expected, n = _first_pass(j)
+    first = _test(given, expected, n, settings)
+    heavy = first["flagged"] & (first["k"] > first["e"])
+    by_label: dict[int, list[int]] = {}
+    for a, label in zip(first["a"][heavy], first["l"][heavy], strict=True):
+        by_label.setdefault(int(label), []).append(int(a))
+    if by_label:
+        n = n.copy()
+        for label, users in by_label.items():
+            excluded = np.zeros(j.n_annotators, dtype=bool)
+            excluded[users] = True
+            g, e, items = _recount(j, label, excluded)
+            given[:, label], expected[:, label], n[:, label] = g, e, items
+    final = _test(given, expected, n, settings)
+    a_idx, l_idx, k, e, nn = final["a"], final["l"], final["k"], final["e"], final["n"]
+    p, q, ratio, flagged = final["p"], final["q"], final["ratio"], final["flagged"]
+    n_items = np.bincount(j.pair_annotator[j.judges[j.pair_item] >= 2], minlength=j.n_annotators)
+    tested = a_idx
     results: list[SkewResult] = []
     for i in np.flatnonzero(flagged):
         name = str(j.annotator_names[a_idx[i]])
@@ -181,4 +257,4 @@ def annotator_skew(
             )
         )
     summaries.sort(key=lambda s: (-len(s.skewed_labels), -(s.alpha_change or 0.0), s.annotator))
-    return results, summaries, int(tested.sum())
+    return results, summaries, int(tested.size)

@@ -130,7 +130,8 @@ def binomial_two_sided(k: np.ndarray, n: np.ndarray, p: np.ndarray) -> np.ndarra
     The p-value is min(1, 2 min(P(X <= k), P(X >= k))) for X ~ Binomial(n, p): twice the
     smaller one-sided exact p-value (the "doubling" two-sided rule). Each one-sided value equals
     ``scipy.stats.binomtest(k, n, p, alternative="less" / "greater").pvalue``; scipy's own
-    two-sided rule sums the outcomes no likelier than k instead, which can give a smaller value.
+    two-sided rule sums the outcomes no likelier than k instead, which differs a little either
+    way on skewed distributions.
 
     >>> float(binomial_two_sided(np.array(0), np.array(10), np.array(0.5)).round(6))
     0.001953

@@ -368,3 +368,70 @@ def test_governance_defaults(tmp_path: Path) -> None:
 def test_governance_errors(tmp_path: Path, text: str, pattern: str) -> None:
     with pytest.raises(ConfigError, match=pattern):
         load_config(write(tmp_path, "version: 1\n" + text).parent)
+
+
+SIGNALS = """\
+version: 1
+signals:
+  contested_below: 0.5
+  fdr: 0.1
+  disparity_ratio: 0.75
+  min_group_size: 20
+  min_expected: 1
+  proxy_columns: [zone, device]
+  skew_min_items: 50
+queue:
+  weights: {lexicon: 5, prevalence: 0}
+  severity: {disparity: high}
+"""
+
+
+def test_signals_and_queue_sections(tmp_path: Path) -> None:
+    config = load_config(write(tmp_path, SIGNALS).parent)
+    s = config.signals
+    assert (s.contested_below, s.fdr, s.disparity_ratio) == (0.5, 0.1, 0.75)
+    assert (s.min_group_size, s.min_expected, s.skew_min_items) == (20, 1.0, 50)
+    assert s.proxy_columns == ("zone", "device") and s.proxy_nmi == 0.25  # default kept
+    assert config.queue.weights == {
+        "lexicon": 5.0,
+        "contested": 2.0,
+        "disparity": 3.0,
+        "annotator_skew": 1.0,
+        "prevalence": 0.0,
+    }
+    assert config.queue.severity == {
+        "contested": "low",
+        "disparity": "high",
+        "annotator_skew": "low",
+    }
+
+
+def test_signals_and_queue_defaults(tmp_path: Path) -> None:
+    config = load_config(write(tmp_path, "version: 1\n").parent)
+    assert config.signals.min_group_size == 10 and config.signals.proxy_columns is None
+    assert config.signals.disparity_ratio == 0.8 and config.signals.fdr == 0.05
+    assert config.queue.severity["disparity"] == "medium"
+
+
+@pytest.mark.parametrize(
+    ("text", "pattern"),
+    [
+        ("signals:\n  min_group_size: 0\n", r"line 3, column 19: 'signals.min_group_size' must"),
+        ("signals:\n  disparity_ratio: 1.5\n", r"'signals.disparity_ratio' must be between 0"),
+        ("signals:\n  fdr: 0\n", r"line 3, column 8: 'signals.fdr' must be above 0"),
+        ("signals:\n  k: 5\n", r"unknown key 'signals.k'"),
+        ("signals:\n  proxy_columns: zone\n", r"'signals.proxy_columns' must be a list"),
+        ("queue:\n  weights: {lexcon: 1}\n", r"unknown key 'queue.weights.lexcon'.*lexicon"),
+        ("queue:\n  weights: {lexicon: -1}\n", r"'queue.weights.lexicon' must be between 0"),
+        (
+            "queue:\n  weights: {lexicon: 0, contested: 0, disparity: 0, annotator_skew: 0, "
+            "prevalence: 0}\n",
+            r"'queue.weights' are all 0",
+        ),
+        ("queue:\n  severity: {proxy: high}\n", r"unknown key 'queue.severity.proxy'"),
+        ("queue:\n  severity: {contested: loud}\n", r"'queue.severity.contested' must be one of"),
+    ],
+)
+def test_signals_and_queue_errors(tmp_path: Path, text: str, pattern: str) -> None:
+    with pytest.raises(ConfigError, match=pattern):
+        load_config(write(tmp_path, "version: 1\n" + text).parent)
