@@ -1,10 +1,12 @@
 """The audit trail for a governance board: one report structure, four renderings.
 
 :func:`build_audit_report` gathers everything a board reads about one dataset into a plain,
-JSON-ready dict: the input fingerprints, the lexicon hash, counts by category, severity and
-action, every decision (in force, superseded or revoked) with its reason, curator and time, the
-flags still undecided, the agreement summary where it is defined, the sign-offs and whether they
-still hold, the log's verification status and the cautions. :func:`render` turns that one dict
+JSON-ready dict: the input fingerprints, the lexicon hash, counts by category, severity, data
+signal and action, every decision (in force, superseded or revoked) with its reason, curator and
+time, the review queue's entries still undecided (score, categories, data signals, reasons),
+the queue's formula, weights and notes, the agreement summary where it is defined, the sign-offs
+and whether they still hold, the log's verification status and the cautions (with the disparity
+cautions when consented attributes are used). :func:`render` turns that one dict
 into CSV, JSON, Markdown or a self-contained HTML page, so the four formats say the same things.
 Empty sections still render (with a header, or a line saying there is nothing).
 

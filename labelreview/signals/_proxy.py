@@ -69,27 +69,29 @@ class ProxyResult:
 def _column_codes(values: pd.Series, max_levels: int) -> tuple[np.ndarray, int, bool, str | None]:
     """(codes with -1 for empty, levels, binned, reason it cannot be used)."""
     text = values.astype(str).str.strip()
-    present = text != ""
-    numbers = pd.to_numeric(text.where(present, None), errors="coerce")
-    n_present = int(present.sum())
-    distinct = int(text[present].nunique())
+    codes, uniques = pd.factorize(text.where(text != "", None), sort=False)
+    codes = codes.astype(np.int64)
+    distinct = len(uniques)
+    counts = np.bincount(codes[codes >= 0], minlength=distinct)
+    # Numbers are parsed once per distinct value, not once per row.
+    numbers = pd.to_numeric(pd.Series(np.asarray(uniques, dtype=object)), errors="coerce")
+    numeric = numbers.notna().to_numpy()
+    present = int(counts.sum())
     binned = False
-    if n_present and numbers.notna().sum() >= NUMERIC_SHARE * n_present and distinct > max_levels:
-        cut = pd.qcut(numbers, BINS, labels=False, duplicates="drop")
-        codes = cut.fillna(-1).to_numpy(dtype=np.int64)
+    if present and counts[numeric].sum() >= NUMERIC_SHARE * present and distinct > max_levels:
+        per_row = np.where(codes >= 0, numbers.to_numpy(dtype=float)[np.maximum(codes, 0)], np.nan)
+        cut = pd.qcut(per_row, BINS, labels=False, duplicates="drop")
+        codes = np.where(np.isnan(cut), -1, cut).astype(np.int64)
         binned = True
-    else:
-        if distinct > max_levels:
-            return (
-                np.zeros(0, np.int64),
-                distinct,
-                False,
-                f"{distinct} distinct values (an id or free text?); only columns with at most "
-                f"{max_levels} are checked",
-            )
-        codes, _ = pd.factorize(text.where(present, None), sort=False)
-        codes = codes.astype(np.int64)
-    levels = int(np.unique(codes[codes >= 0]).size)
+    elif distinct > max_levels:
+        return (
+            np.zeros(0, np.int64),
+            distinct,
+            False,
+            f"{distinct} distinct values (an id or free text?); only columns with at most "
+            f"{max_levels} are checked",
+        )
+    levels = int(np.count_nonzero(np.bincount(codes[codes >= 0]))) if codes.size else 0
     if levels < 2:
         return codes, levels, binned, "a single value: it cannot stand in for anything"
     return codes, levels, binned, None
@@ -118,13 +120,16 @@ def proxy_columns(
             candidates[str(name)] = context[name]
     if settings.proxy_columns is None and "text" in items.columns:
         candidates[TEXT_LENGTH] = items["text"].astype(str).str.len().astype(str)
+    coded = {
+        name: _column_codes(column, settings.proxy_max_levels)
+        for name, column in candidates.items()
+    }
     out: list[ProxyResult] = []
     for attribute in attributes:
         values = items[attribute].astype(str).str.strip()
         a_codes, _ = pd.factorize(values.where(values != "", None), sort=False)
         a_codes = a_codes.astype(np.int64)
-        for name, column in candidates.items():
-            codes, levels, binned, reason = _column_codes(column, settings.proxy_max_levels)
+        for name, (codes, levels, binned, reason) in coded.items():
             both = (a_codes >= 0) & (codes >= 0) if reason is None else np.zeros(0, bool)
             n_items = int(both.sum())
             nmi = vee = None

@@ -143,7 +143,7 @@ def _recount(
     rows = j.label == label
     item_l, ann_l = j.item[rows], j.annotator[rows]
     ref_gave = np.bincount(item_l[~excluded[ann_l]], minlength=j.n_items)
-    pair_keys = pair_item * n_ann + pair_ann  # sorted: pairs come from np.unique
+    pair_keys = pair_item * n_ann + pair_ann  # sorted: pairs come from sorted_unique
     gave = np.zeros(pair_keys.size, dtype=bool)
     gave[np.searchsorted(pair_keys, item_l * n_ann + ann_l)] = True
     others = ref_judges[pair_item] - in_ref
