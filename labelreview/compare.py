@@ -199,6 +199,10 @@ def _label_alphas(session: ReviewSession) -> tuple[dict[str, float] | None, str 
         return None, "no annotations"
     if frame["annotator"].nunique() < 2:
         return None, "fewer than two annotators, so agreement is undefined"
+    # The review queue's data signals already ran the agreement report for this session.
+    computed = session.signals().agreement
+    if computed is not None:
+        return {a.label: float(a.alpha) for a in computed.per_label if a.alpha is not None}, None
     try:
         from labelreview.agreement import UndefinedAgreementWarning, per_label_alpha
     except ImportError:  # pragma: no cover - the agreement engine ships with labelreview

@@ -307,8 +307,14 @@ def alpha_from_coincidences(
     matrix: sp.csr_matrix,
     factory: Callable[[np.ndarray], Metric],
     value_names: list[str] | None = None,
+    *,
+    expected_sum: float | None = None,
 ) -> AlphaParts:
-    """alpha = 1 - (n - 1) * sum o_ck delta^2_ck / sum n_c n_k delta^2_ck."""
+    """alpha = 1 - (n - 1) * sum o_ck delta^2_ck / sum n_c n_k delta^2_ck.
+
+    ``expected_sum`` (sum n_c n_k delta^2_ck for this matrix's marginals) may be passed when the
+    caller computed it already, for many matrices at once (:func:`leave_one_out`).
+    """
     marg = np.asarray(matrix.sum(axis=1)).ravel()
     n = float(marg.sum())
     if n < 2 - 1e-9:
@@ -322,7 +328,8 @@ def alpha_from_coincidences(
     metric = factory(marg)
     coo = matrix.tocoo()
     observed_sum = float((coo.data * metric.pairs(coo.row, coo.col)).sum())
-    expected_sum = float(metric.expected_sum(marg))
+    if expected_sum is None:
+        expected_sum = float(metric.expected_sum(marg))
     observed = observed_sum / n
     if expected_sum <= 1e-12 * max(n * n, 1.0):
         used = np.flatnonzero(marg > 0)
@@ -467,8 +474,8 @@ def leave_one_out(
     starts = coded.unit_starts()
     order = np.argsort(coded.annotator, kind="stable")
     bounds = np.searchsorted(coded.annotator[order], np.arange(coded.n_annotators + 1))
-    out: list[AlphaParts] = []
     n_values, n_units = coded.n_values, coded.n_units
+    reduced_all: list[sp.csr_matrix] = []
     for a in range(coded.n_annotators):
         own = order[bounds[a] : bounds[a + 1]]
         units = np.unique(coded.unit[own])
@@ -482,8 +489,25 @@ def leave_one_out(
         reduced = (matrix - before + after).tocsr()
         reduced.data[np.abs(reduced.data) < 1e-9] = 0.0
         reduced.eliminate_zeros()
-        out.append(alpha_from_coincidences(reduced, factory, coded.value_names))
-    return out
+        reduced_all.append(reduced)
+    if factory is OrdinalMetric or not reduced_all:
+        # The ordinal difference function depends on each matrix's own marginals.
+        return [alpha_from_coincidences(r, factory, coded.value_names) for r in reduced_all]
+    # Every other difference function is fixed, so the expected sums of many matrices come
+    # from one pass over the difference blocks (MASI recomputes its blocks on every call).
+    margs = np.vstack([np.asarray(r.sum(axis=1)).ravel() for r in reduced_all])
+    metric = factory(margs[0])
+    chunk = max(1, _BLOCK_BUDGET // max(n_values, 1))
+    sums = np.concatenate(
+        [
+            np.atleast_1d(metric.expected_sum(margs[i : i + chunk]))
+            for i in range(0, len(reduced_all), chunk)
+        ]
+    )
+    return [
+        alpha_from_coincidences(r, factory, coded.value_names, expected_sum=float(total))
+        for r, total in zip(reduced_all, sums, strict=True)
+    ]
 
 
 # -- bootstrap ----------------------------------------------------------------------------------

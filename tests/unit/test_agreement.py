@@ -286,3 +286,21 @@ def test_properties_symmetry_order_and_renaming(columns, rnd):
                 assert got is None
             else:
                 assert got is not None and math.isclose(got, base, abs_tol=1e-12)
+
+
+def test_multi_label_leave_one_out_equals_alpha_computed_without_that_annotator():
+    # Self-consistency: leave-one-out computes every annotator's expected disagreement in one
+    # batch; each must equal the MASI alpha of the data with that annotator's rows removed.
+    rng = np.random.default_rng(12)
+    rows = []
+    for i in range(150):
+        for a in rng.choice(["a", "b", "c", "d", "e"], 3, replace=False):
+            for label in rng.choice(["x", "y", "z", "w"], rng.integers(1, 3), replace=False):
+                rows.append((f"i{i}", str(a), str(label)))
+    data = pd.DataFrame(rows, columns=["item", "annotator", "label"])
+    report = agreement_report(data, bootstrap=0)
+    assert report.multi_label and report.distance == "masi"
+    for entry in report.per_annotator:
+        rest = data[data["annotator"] != entry.annotator]
+        alone = agreement_report(rest, bootstrap=0, leave_out=False)
+        assert entry.alpha_without == pytest.approx(alone.alpha, abs=1e-10), entry.annotator
