@@ -288,7 +288,7 @@ def compare_versions(
         elif entry.get("lexicon_hash") == new.lexicon_hash:
             carried[label] = CarriedDecision.from_entry(entry)
         elif _covered_in_new(new_state, label, new.lexicon_hash) is None:
-            flag = new.flag(label)
+            current = new.flag(label)
             review.append(
                 ReviewItem(
                     label=label,
@@ -296,7 +296,7 @@ def compare_versions(
                     why=f"decided in OLD (seq {entry.seq}, {entry.get('action')}) with lexicon "
                     f"{str(entry.get('lexicon_hash'))[:19]}; NEW is scanned with "
                     f"{new.lexicon_hash[:19]}",
-                    severity=None if flag is None else flag.severity,
+                    severity=None if current is None else current.severity,
                     old_seq=entry.seq,
                 )
             )
@@ -341,14 +341,14 @@ def compare_versions(
                 )
     drops.sort(key=lambda d: (-d.drop, d.label))
     for d in drops:
-        flag = new.flag(d.label)
+        current = new.flag(d.label)
         review.append(
             ReviewItem(
                 label=d.label,
                 kind="agreement_drop",
                 why=f"per-label agreement fell from {d.old_alpha:.3f} to {d.new_alpha:.3f} "
                 f"(more than {threshold:.2f})",
-                severity=None if flag is None else flag.severity,
+                severity=None if current is None else current.severity,
             )
         )
     review.sort(

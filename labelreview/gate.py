@@ -257,7 +257,7 @@ class GateFlag:
 
     def by_category(self) -> list[tuple[str, str, list[Finding]]]:
         """(category, highest severity, findings) per category, in the flag's order."""
-        out = []
+        out: list[tuple[str, str, list[Finding]]] = []
         for category in self.flag.categories:
             found = [f for f in self.findings if f.category == category]
             if found:

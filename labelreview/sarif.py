@@ -76,15 +76,15 @@ def gate_sarif(result: GateResult) -> dict[str, Any]:
     rule_index = {cid: i for i, cid in enumerate(category_ids)}
     rules = []
     for cid in category_ids:
-        category = result.categories[cid]
+        info = result.categories[cid]
         rules.append(
             {
                 "id": cid,
                 "name": "".join(part.capitalize() for part in cid.split("_")),
-                "shortDescription": _text(category.title),
-                "fullDescription": _text(category.rationale or category.title),
-                "defaultConfiguration": {"level": LEVELS.get(category.severity, "warning")},
-                "properties": {"severity": category.severity, "source": category.source},
+                "shortDescription": _text(info.title),
+                "fullDescription": _text(info.rationale or info.title),
+                "defaultConfiguration": {"level": LEVELS.get(info.severity, "warning")},
+                "properties": {"severity": info.severity, "source": info.source},
             }
         )
     for name in DATA_SIGNALS:
