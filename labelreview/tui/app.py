@@ -12,6 +12,7 @@ import contextlib
 import gc
 import traceback
 from collections.abc import Iterable
+from pathlib import Path
 from typing import Any
 
 from textual import on, work
@@ -58,7 +59,7 @@ class SearchBox(Input):
 class ReviewApp(App[int]):
     """``labelreview review``: accept, rename or retire each flagged label, with a reason."""
 
-    CSS_PATH = "review.tcss"
+    CSS_PATH = Path(__file__).with_name("review.tcss")  # absolute: subclasses live elsewhere
     TITLE = "labelreview review"
     ENABLE_COMMAND_PALETTE = True
 
@@ -96,6 +97,8 @@ class ReviewApp(App[int]):
         self.read_only_reason = "opened read-only" if read_only else ""
         self.rows: list[QueueRow] = []
         self.by_label: dict[str, QueueRow] = {}
+        self.reviewed = 0
+        """Rows whose status is not open (kept up to date at each write)."""
         self.filters = FilterState()
         self.evidence: LabelEvidence | None = None
         self.agreement_note: str | None = None
@@ -105,6 +108,7 @@ class ReviewApp(App[int]):
         """Why the app could not open the dataset (the CLI reports it after the app exits)."""
         self.failure_trace: str | None = None
         self._held = contextlib.ExitStack()
+        self._had_row = False
         for theme in THEMES:
             self.register_theme(theme)
         self.theme = DEFAULT_THEME
@@ -170,11 +174,12 @@ class ReviewApp(App[int]):
             self.call_from_thread(self._failed, wrapped, traceback.format_exc())
             return
         self.call_from_thread(self._loaded, session, rows)
-        self._measure(session)
 
+    @work(thread=True, exclusive=True, group="measure", exit_on_error=False)
     def _measure(self, session: ReviewSession) -> None:
         """Agreement, then annotator counts and example items (the queue is usable meanwhile)."""
         try:
+            session.fingerprint()  # hashes the input files once; every decision records it
             by_label, note = label_agreement(session.dataset)
             self.call_from_thread(self._agreement_ready, by_label, note)
             labels = [f.label for f in session.flags]
@@ -187,10 +192,12 @@ class ReviewApp(App[int]):
                 severity="warning",
             )
 
+
     def _loaded(self, session: ReviewSession, rows: list[QueueRow]) -> None:
         self.session = session
         self.rows = rows
         self.by_label = {row.label: row for row in rows}
+        self.reviewed = sum(1 for row in rows if row.status != "open")
         self.loaded = True
         queue = self.query_one(QueueView)
         queue.empty_text = (
@@ -210,6 +217,8 @@ class ReviewApp(App[int]):
         # The loaded queue lives as long as the app: keep the garbage collector from walking it
         # on every full collection (a visible pause per key at 50,000 flags).
         gc.freeze()
+        # Measure once the queue is on screen, so the first paint does not wait for it.
+        self.call_after_refresh(self._measure, session)
 
     def _agreement_ready(self, by_label: dict[str, LabelAgreement], note: str | None) -> None:
         attach_agreement(self.rows, by_label)
@@ -298,7 +307,7 @@ class ReviewApp(App[int]):
                 (f"({log_state})", "$warning" if self.read_only else "$text-muted"),
             )
         )
-        done, total = sum(1 for r in self.rows if r.status != "open"), len(self.rows)
+        done, total = self.reviewed, len(self.rows)
         share = f" {100 * done / total:.0f}%" if total else ""
         width = 16
         filled = round(width * done / total) if total else 0
@@ -347,7 +356,12 @@ class ReviewApp(App[int]):
     @on(QueueView.Highlighted)
     def _highlighted(self, event: QueueView.Highlighted) -> None:
         self._show_detail(event.row)
-        self.refresh_bindings()
+        # Refreshing the bindings rebuilds the footer (costly at every key): only when the
+        # decision keys change between available and greyed.
+        has_row = event.row is not None
+        if has_row != self._had_row:
+            self._had_row = has_row
+            self.refresh_bindings()
 
     def _refilter(self, keep: QueueRow | None = None) -> None:
         self.queue.set_rows(apply_filters(self.rows, self.filters), keep=keep)
@@ -437,7 +451,9 @@ class ReviewApp(App[int]):
         for label in labels:
             row = self.by_label.get(label)
             if row is not None:
+                was_open = row.status == "open"
                 row.status = self.session.status(label)
+                self.reviewed += int(was_open) - int(row.status == "open")
         if self.filters.status is not None:
             index = queue.cursor
             queue.set_rows(apply_filters(self.rows, self.filters))

@@ -13,7 +13,6 @@ Nothing here imports Textual; the widgets read these rows.
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 from labelreview.model import SEVERITY_RANK
@@ -27,38 +26,78 @@ STATUSES: tuple[str, ...] = ("open", "accepted", "renamed", "retired")
 """Every status a queue row can have, in the order the filters list them."""
 
 
-@dataclass(eq=False)
 class QueueRow:
-    """One flagged label as the app shows it. ``status`` and ``agreement`` change in place."""
+    """One flagged label as the app shows it. ``status`` and ``agreement`` change in place.
 
-    rank: int
-    """0-based position in the session's queue (most urgent first)."""
-    label: str
-    severity: str
-    categories: tuple[str, ...]
-    """Category ids (``character_judgement``)."""
-    category_titles: tuple[str, ...]
-    """The lexicon's titles for them, same order."""
-    terms: tuple[str, ...]
-    reasons: tuple[str, ...]
-    """Plain sentences."""
-    suggestions: tuple[str, ...]
-    annotations: int
-    items: int
-    score: float | None = None
-    status: str = "open"
-    agreement: LabelAgreement | None = None
-    """This label's per-label alpha, once it has been measured."""
-    folded: str = field(default="", repr=False)
-    """The label case-folded, for search."""
+    Built for every flag at launch (50,000 of them in the benchmark), so it keeps only what
+    the queue and the filters read and works out the rest from the flag when the detail pane
+    asks for it.
+    """
 
-    def __post_init__(self) -> None:
-        if not self.folded:
-            self.folded = self.label.casefold()
+    __slots__ = ("agreement", "flag", "folded", "rank", "status", "_titles")
+
+    def __init__(
+        self, rank: int, flag: Flag, titles: Mapping[str, str], status: str = "open"
+    ) -> None:
+        self.rank = rank
+        """0-based position in the session's queue (most urgent first)."""
+        self.flag = flag
+        self.status = status
+        self.agreement: LabelAgreement | None = None
+        """This label's per-label alpha, once it has been measured."""
+        self.folded = flag.label.casefold()
+        """The label case-folded, for search."""
+        self._titles = titles
+
+    def __repr__(self) -> str:
+        return f"QueueRow({self.label!r}, {self.severity}, {self.status})"
+
+    @property
+    def label(self) -> str:
+        return self.flag.label
+
+    @property
+    def severity(self) -> str:
+        return self.flag.severity
 
     @property
     def severity_rank(self) -> int:
-        return SEVERITY_RANK.get(self.severity, 0)
+        return SEVERITY_RANK.get(self.flag.severity, 0)
+
+    @property
+    def categories(self) -> tuple[str, ...]:
+        """Category ids (``character_judgement``)."""
+        return tuple(self.flag.categories)
+
+    @property
+    def category_titles(self) -> tuple[str, ...]:
+        """The lexicon's titles for the categories, same order."""
+        return tuple(self._titles.get(c) or category_words(c) for c in self.flag.categories)
+
+    @property
+    def terms(self) -> tuple[str, ...]:
+        return tuple(self.flag.terms)
+
+    @property
+    def reasons(self) -> tuple[str, ...]:
+        """Plain sentences."""
+        return tuple(reason_text(r) for r in self.flag.reasons)
+
+    @property
+    def suggestions(self) -> tuple[str, ...]:
+        return tuple(self.flag.suggestions)
+
+    @property
+    def annotations(self) -> int:
+        return int(self.flag.annotations)
+
+    @property
+    def items(self) -> int:
+        return int(self.flag.items)
+
+    @property
+    def score(self) -> float | None:
+        return flag_score(self.flag)
 
     @property
     def alpha(self) -> float | None:
@@ -92,30 +131,13 @@ def flag_score(flag: Flag) -> float | None:
     return float(score) if isinstance(score, (int, float)) else None
 
 
-def row_from_flag(rank: int, flag: Flag, titles: Mapping[str, str], status: str) -> QueueRow:
-    return QueueRow(
-        rank=rank,
-        label=flag.label,
-        severity=flag.severity,
-        categories=tuple(flag.categories),
-        category_titles=tuple(titles.get(c, category_words(c)) for c in flag.categories),
-        terms=tuple(flag.terms),
-        reasons=tuple(reason_text(r) for r in flag.reasons),
-        suggestions=tuple(flag.suggestions),
-        annotations=int(flag.annotations),
-        items=int(flag.items),
-        score=flag_score(flag),
-        status=status,
-    )
-
-
 def queue_rows(session: ReviewSession) -> list[QueueRow]:
     """Every flag of the session as a row, in the session's order, with its logged status."""
     titles = {cid: category.title for cid, category in session.scanned.lexicon.categories.items()}
     state = session.state()
+    status = state.status
     return [
-        row_from_flag(rank, flag, titles, state.status(flag.label))
-        for rank, flag in enumerate(session.flags)
+        QueueRow(rank, flag, titles, status(flag.label)) for rank, flag in enumerate(session.flags)
     ]
 
 

@@ -20,6 +20,7 @@ from labelreview.tui import ReviewApp, ReviewSource
 from labelreview.tui.screens.decision import DecisionScreen, UndoScreen
 from labelreview.tui.screens.filters import FilterScreen
 from labelreview.tui.screens.info import HelpScreen, MessageScreen
+from labelreview.tui.widgets.detail import DetailPane
 from labelreview.tui.widgets.queue import QueueView
 from tests.tui.conftest import CURATOR, SAMPLE, log_entries, make_session
 
@@ -38,6 +39,10 @@ async def opened(app: ReviewApp, pilot) -> None:  # noqa: ANN001 - Textual's Pil
 
 def text_of(app: ReviewApp, selector: str) -> str:
     return str(app.screen.query_one(selector, Static).render())
+
+
+def detail_text(app: ReviewApp) -> str:
+    return app.query_one(DetailPane).text
 
 
 def queue_line(app: ReviewApp, label: str) -> str:
@@ -92,7 +97,7 @@ async def test_accept_is_logged_before_the_queue_shows_it(session, log_path):
         assert "✓ accepted" in queue_line(app, CLEANING_LADY)
         assert "reviewed 1 of 27" in text_of(app, "#progress-text")
         await go_to(app, pilot, CLEANING_LADY)
-        history = text_of(app, "#detail-body")
+        history = detail_text(app)
         assert "the archive keeps the source card's own words" in history
         assert "#1 2026-01-05 09:00 mira  accept" in history
 
@@ -221,7 +226,7 @@ async def test_retire_without_a_fallback_drops_the_annotations(session, log_path
         (entry,) = log_entries(log_path)
         assert entry["action"] == "retire" and entry["fallback"] is None
         await go_to(app, pilot, "people/status/vagrant")
-        assert "annotations dropped" in text_of(app, "#detail-body")
+        assert "annotations dropped" in detail_text(app)
 
 
 async def test_a_failed_write_keeps_the_dialog_and_the_typed_reason(session, log_path):
@@ -279,7 +284,7 @@ async def test_undo_revokes_the_last_decision_with_a_reason(session, log_path):
         assert app.current is not None and app.current.label == CLEANING_LADY
         assert "· open" in queue_line(app, CLEANING_LADY)
         assert "reviewed 0 of 27" in text_of(app, "#progress-text")
-        assert "(undone)" in text_of(app, "#detail-body")
+        assert "(undone)" in detail_text(app)
 
 
 # -- filters and search --------------------------------------------------------------------------
@@ -369,7 +374,7 @@ async def test_reopening_shows_every_earlier_decision(sample_scan, log_path):
         assert "× retired" in queue_line(app, "people/status/vagrant")
         assert "· open" in queue_line(app, "people/roles/teacher")
         await go_to(app, pilot, "people/roles/teacher")
-        detail = text_of(app, "#detail-body")
+        detail = detail_text(app)
         assert "tomas" in detail and "(undone)" in detail and "undo" in detail
         # The cursor starts on the first label still open.
         assert log_path.read_bytes() == before

@@ -2,9 +2,12 @@
 
 from __future__ import annotations
 
-from textual.containers import VerticalScroll
+from textual.binding import Binding
 from textual.content import Content
-from textual.widgets import Static
+from textual.geometry import Size
+from textual.scroll_view import ScrollView
+from textual.strip import Strip
+from textual.visual import Visual
 
 from labelreview.decisions import Entry, LogState
 from labelreview.evidence import LabelEvidence
@@ -144,11 +147,67 @@ def detail_content(
     return Content.assemble(*parts)
 
 
-class DetailPane(VerticalScroll, can_focus=True):
-    """A scrolling pane holding the selected label's details."""
+class DetailPane(ScrollView, can_focus=True):
+    """The selected label's details, wrapped once per update and drawn line by line.
 
-    def compose(self):  # noqa: ANN201 - Textual's compose
-        yield Static(id="detail-body", markup=False)
+    A Static inside a scrolling container re-lays out the whole screen on every update (about
+    20 ms per cursor move); this pane renders its lines itself and repaints only its region.
+    """
+
+    BINDINGS = [
+        Binding("up", "scroll_up", "scroll up", show=False),
+        Binding("down", "scroll_down", "scroll down", show=False),
+        Binding("pageup", "page_up", "page up", show=False),
+        Binding("pagedown", "page_down", "page down", show=False),
+    ]
+
+    DEFAULT_CSS = """
+    DetailPane { overflow-x: hidden; overflow-y: auto; }
+    """
+
+    def __init__(self, *, id: str | None = None) -> None:  # noqa: A002 - Textual's name
+        super().__init__(id=id)
+        self.content = Content("")
+        self._lines: list[Strip] = []
+        self._blank = Strip([])
+        self._width = 0
+
+    @property
+    def text(self) -> str:
+        """The plain text shown (for tests)."""
+        return self.content.plain
 
     def show(self, content: Content) -> None:
-        self.query_one("#detail-body", Static).update(content)
+        self.content = content
+        self._wrap()
+        self.scroll_to(y=0, animate=False, immediate=True)
+        self.refresh()
+
+    def _wrap(self) -> None:
+        width = self.scrollable_content_region.width
+        self._width = width
+        if width <= 0:
+            self._lines = []
+            return
+        base = self.rich_style
+        self._blank = Strip.blank(width, base)
+        self._lines = [
+            strip.extend_cell_length(width, base)
+            for strip in Visual.to_strips(self, self.content, width, None, self.visual_style)
+        ]
+        # A change of virtual size re-lays out the whole screen (about 10 ms at every cursor
+        # move): the height is rounded up to whole pages, so it seldom changes.
+        page = max(self.scrollable_content_region.height, 1)
+        height = -(-len(self._lines) // page) * page
+        if self.virtual_size.height != height or self.virtual_size.width != width:
+            self.virtual_size = Size(width, height)
+
+    def on_resize(self) -> None:
+        self._wrap()
+        self.refresh()
+
+    def render_line(self, y: int) -> Strip:
+        index = int(self.scroll_offset.y) + y
+        if 0 <= index < len(self._lines):
+            return self._lines[index]
+        return self._blank

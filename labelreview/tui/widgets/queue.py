@@ -144,6 +144,10 @@ class QueueView(ScrollView, can_focus=True):
         """True once agreement was measured (a missing figure then reads "–", not "…")."""
         self.empty_text = "Loading…"
         self._last_posted: QueueRow | None = None
+        self._line_cache: dict[tuple[object, ...], Strip] = {}
+        self._base_style: Style | None = None
+        """Drawn lines by (row, status, alpha, cursor state, width): repaints after a layout
+        change cost a lookup per line."""
 
     # -- data ----------------------------------------------------------------------------------
 
@@ -255,12 +259,24 @@ class QueueView(ScrollView, can_focus=True):
     def _style(self, name: str) -> Style:
         return self.get_component_rich_style(f"queue-view--{name}", partial=True)
 
+    def notify_style_update(self) -> None:
+        super().notify_style_update()
+        self._line_cache.clear()
+        self._base_style = None
+
+    @property
+    def base_style(self) -> Style:
+        # Widget.rich_style walks the ancestors' styles on every call; once per style change
+        # is enough.
+        if self._base_style is None:
+            self._base_style = self.rich_style
+        return self._base_style
+
     def render_line(self, y: int) -> Strip:
         width = self.size.width
-        base = self.rich_style
-        columns = Columns.fit(width)
+        base = self.base_style
         if y == 0:
-            return self._header(columns, width)
+            return self._header(Columns.fit(width), width)
         index = int(self.scroll_offset.y) + y - 1
         if not self.rows:
             if y == 2:
@@ -270,6 +286,18 @@ class QueueView(ScrollView, can_focus=True):
         if index >= len(self.rows):
             return Strip.blank(width, base)
         row = self.rows[index]
+        cursor = 0 if index != self.cursor else (1 if self.has_focus else 2)
+        key = (id(row), row.status, row.alpha, self.measured, cursor, width)
+        strip = self._line_cache.get(key)
+        if strip is None:
+            if len(self._line_cache) > 4000:
+                self._line_cache.clear()
+            strip = self._line_cache[key] = self._render_row(row, index, width)
+        return strip
+
+    def _render_row(self, row: QueueRow, index: int, width: int) -> Strip:
+        base = self.base_style
+        columns = Columns.fit(width)
         if index == self.cursor:
             cursor = "cursor" if self.has_focus else "cursor-blurred"
             base = base + self.get_component_rich_style(f"queue-view--{cursor}")
@@ -312,7 +340,7 @@ class QueueView(ScrollView, can_focus=True):
         return Style()
 
     def _header(self, columns: Columns, width: int) -> Strip:
-        style = self.rich_style + self.get_component_rich_style("queue-view--header")
+        style = self.base_style + self.get_component_rich_style("queue-view--header")
         parts = [
             " ",
             _fit("STATUS", columns.status),
