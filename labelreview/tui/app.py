@@ -192,7 +192,6 @@ class ReviewApp(App[int]):
                 severity="warning",
             )
 
-
     def _loaded(self, session: ReviewSession, rows: list[QueueRow]) -> None:
         self.session = session
         self.rows = rows
