@@ -244,8 +244,9 @@ class ReviewApp(App[int]):
             else:
                 self.exit(2, return_code=2)
 
+        message = exc.message[:1].upper() + exc.message[1:]
         body = (
-            f"{exc.message}.\n\nAnother review session has this dataset's decision log open. "
+            f"{message}.\n\nAnother review session has this dataset's decision log open. "
             "Nothing was written, and nothing will be: the log stays exactly as it is.\n\n"
             "Quit and finish or close that session first, or look through the queue read-only."
         )
@@ -287,7 +288,10 @@ class ReviewApp(App[int]):
         progress = self.query_one("#progress-text", Static)
         session = self.session
         if session is None or not self.loaded:
-            name = self.source.dataset_dir.name if self.source is not None else ""
+            if session is not None:
+                name = session.config.name or session.dataset.root.resolve().name
+            else:
+                name = self.source.dataset_dir.name if self.source is not None else ""
             where.update(Content.assemble(("labelreview", "bold"), f"  {name}  opening…"))
             progress.update(Content.assemble(("reviewed – of –", "bold")))
             return
@@ -312,8 +316,8 @@ class ReviewApp(App[int]):
         filled = round(width * done / total) if total else 0
         progress.update(
             Content.assemble(
-                ("█" * filled, "$success"),
-                ("░" * (width - filled), "$text-muted"),
+                ("━" * filled, "bold $success"),
+                ("━" * (width - filled), "$panel-lighten-2"),
                 " ",
                 (f"reviewed {done:,} of {total:,}", "bold"),
                 (share, "$text-muted"),

@@ -53,7 +53,8 @@ class FilterScreen(ModalScreen[FilterState | None]):
             yield Static(Content.from_markup("[b $primary]Filter the queue[/]"), id="dialog-title")
             with Horizontal(id="filter-lists"):
                 for dimension in DIMENSIONS:
-                    with Vertical(classes="filter-column"):
+                    wide = " -wide" if dimension == "category" else ""
+                    with Vertical(classes=f"filter-column{wide}"):
                         yield Label(dimension, classes="field-label")
                         yield OptionList(id=f"filter-{dimension}")
             yield Static(id="filter-total")
@@ -98,7 +99,7 @@ class FilterScreen(ModalScreen[FilterState | None]):
             count = counts.get(value, 0)
             name = category_words(value) if dimension == "category" else value
         return Content.assemble(
-            name.ljust(24 if dimension == "category" else 9), (f"{count:>7,}", "$text-muted")
+            name.ljust(30 if dimension == "category" else 10), (f"{count:>7,}", "$text-muted")
         )
 
     def _recount(self) -> None:

@@ -34,36 +34,40 @@ def _heading(text: str) -> Content:
 
 
 def describe_entry(entry: Entry, state: LogState) -> Content:
-    """One history line: time, who, what, why."""
+    """One history entry: number, time, who, what, then the reason on its own line."""
     when = entry.time[:16].replace("T", " ")
-    who = entry.actor
     if entry.kind == "revoke":
-        what = Content.assemble(("undo", "bold $warning"), f" of seq {entry.get('revokes')}")
+        what = Content.assemble(("undo", "bold $warning"), f" of #{entry.get('revokes')}")
     else:
-        action = str(entry.get("action"))
-        what = Content.assemble((action, STATUS_STYLE.get(_status_of(action), "bold")))
-        if action == "rename":
-            what = what.append(f" → {entry.get('new_label')}")
-            if entry.get("merge"):
-                what = what.append(" (merge)")
-        elif action == "retire":
-            fallback = entry.get("fallback")
-            what = what.append(
-                f", annotations to {fallback}" if fallback else ", annotations dropped"
-            )
+        what = describe_decision(entry)
         if entry.seq in state.revoked:
             what = what.append(Content.assemble(("  (undone)", "$text-muted italic")))
     return Content.assemble(
-        (f"  #{entry.seq} {when} ", "$text-muted"),
-        (who, "italic"),
+        (f"#{entry.seq} {when} ", "$text-muted"),
+        (entry.actor, "italic"),
         "  ",
         what,
         "\n",
-        ("      “", "$text-muted"),
+        ("“", "$text-muted"),
         str(entry.get("reason") or ""),
         ("”", "$text-muted"),
         "\n",
     )
+
+
+def describe_decision(entry: Entry) -> Content:
+    """``renamed → new`` / ``retired, annotations dropped`` / ``accepted``."""
+    action = str(entry.get("action"))
+    status = _status_of(action)
+    what = Content.assemble((status, STATUS_STYLE.get(status, "bold")))
+    if action == "rename":
+        what = what.append(f" → {entry.get('new_label')}")
+        if entry.get("merge"):
+            what = what.append(" (merge)")
+    elif action == "retire":
+        fallback = entry.get("fallback")
+        what = what.append(f", annotations to {fallback}" if fallback else ", annotations dropped")
+    return what
 
 
 def _status_of(action: str) -> str:
@@ -78,7 +82,10 @@ def detail_content(
     agreement_note: str | None,
     measured: bool,
 ) -> Content:
-    """Everything about one row, as styled text (data is inserted literally, never as markup)."""
+    """Everything about one row, as styled text (data is inserted literally, never as markup).
+
+    Paragraphs start at the left edge: wrapped lines cannot keep an indent.
+    """
     if row is None:
         return Content.from_markup("[$text-muted]No label selected.[/]")
     parts: list[Content | str | tuple[str, str]] = [
@@ -87,8 +94,15 @@ def detail_content(
         (row.severity, SEVERITY_STYLE.get(row.severity, "bold")),
         (" severity", "$text-muted"),
         "  ·  ",
-        (row.status, STATUS_STYLE.get(row.status, "bold")),
     ]
+    decision = state.decision(row.label) if state is not None else None
+    if decision is not None:
+        parts += [
+            describe_decision(decision),
+            (f"  (#{decision.seq}, {decision.actor})", "$text-muted"),
+        ]
+    else:
+        parts.append((row.status, STATUS_STYLE.get(row.status, "bold")))
     if row.score is not None:
         parts += ["  ·  ", (f"score {row.score:.2f}", "$text-muted")]
     parts.append("\n")
@@ -96,7 +110,7 @@ def detail_content(
         parts += [("categories: ", "$text-muted"), "; ".join(row.category_titles), "\n"]
     parts.append(_heading("Why it was flagged"))
     for reason in row.reasons:
-        parts += [("  • ", "$primary"), reason, "\n"]
+        parts += [("• ", "bold $primary"), reason, "\n"]
     if row.terms:
         parts += [("matched terms: ", "$text-muted"), ", ".join(row.terms), "\n"]
     if row.suggestions:
@@ -106,10 +120,10 @@ def detail_content(
     annotators = "…"
     if evidence is not None:
         annotators = f"{evidence.annotator_count(row.label):,}"
-    parts += [
-        f"  {row.annotations:,} annotations on {row.items:,} items by {annotators} annotators\n"
-    ]
-    parts.append(("  agreement: ", "$text-muted"))
+    parts.append(
+        f"{row.annotations:,} annotations on {row.items:,} items by {annotators} annotators\n"
+    )
+    parts.append(("agreement: ", "$text-muted"))
     if row.agreement is not None and row.alpha is not None:
         word = row.agreement.interpretation
         parts += [
@@ -130,20 +144,22 @@ def detail_content(
         if examples:
             parts.append(_heading("Example items"))
             for example in examples:
-                parts += [("  " + example.item, "bold"), "\n"]
+                parts += [(example.item, "bold")]
                 if example.text:
-                    parts += ["    ", example.text, "\n"]
+                    parts += ["  ", example.text]
+                parts.append("\n")
                 if example.preview:
-                    parts += [(f"    preview: {example.preview}", "$text-muted"), "\n"]
+                    parts += [(f"preview {example.preview}", "$text-muted"), "\n"]
 
     parts.append(_heading("Decision history"))
-    history = ()
+    history: tuple[Entry, ...] = ()
     if state is not None and row.label in state.labels:
         history = state.labels[row.label].history
     if not history:
-        parts.append(("  no decisions yet\n", "$text-muted"))
+        parts.append(("no decisions yet\n", "$text-muted"))
     for entry in history:
-        parts.append(describe_entry(entry, state))  # type: ignore[arg-type]
+        assert state is not None
+        parts.append(describe_entry(entry, state))
     return Content.assemble(*parts)
 
 

@@ -47,9 +47,9 @@ class Columns:
     def fit(cls, width: int) -> Columns:
         # pad, status, gap, severity, gap, [label], gap, items, gap, alpha, pad
         fixed = 1 + 10 + 1 + 8 + 1 + 1 + 6 + 1 + 5 + 1
-        if width < 72:
+        if width < 90:  # the categories are in the detail pane too; the label comes first
             return cls(category=0, label=max(width - fixed, 8))
-        category = min(30, max(14, (width - fixed) // 3))
+        category = min(24, max(14, (width - fixed) // 4))
         return cls(category=category, label=max(width - fixed - category - 1, 8))
 
 
