@@ -15,7 +15,7 @@ from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
 
-from textual import on, work
+from textual import events, on, work
 from textual.app import App, ComposeResult
 from textual.binding import Binding
 from textual.containers import Center, Horizontal, Vertical
@@ -132,11 +132,20 @@ class ReviewApp(App[int]):
                 with Horizontal(id="body"):
                     yield QueueView(id="queue")
                     yield DetailPane(id="detail")
-        yield Footer()
+        # ctrl+p (themes, keys) still works; its footer entry would push "q quit" off
+        # an 80-column screen.
+        yield Footer(show_command_palette=False)
 
     def on_mount(self) -> None:
         self._update_topbar()
         self._load()
+
+    def on_resize(self, event: events.Resize) -> None:
+        # Below 100 columns the detail pane goes under the queue instead of beside it.
+        narrow = event.size.width < 100
+        self.set_class(narrow, "-narrow")
+        for footer in self.query(Footer):
+            footer.compact = narrow
 
     def on_unmount(self) -> None:
         self._held.close()

@@ -52,6 +52,7 @@ class ReasonScreen(ModalScreen[bool]):
     BINDINGS = [
         Binding("escape", "cancel", "cancel"),
         Binding("enter", "confirm", "confirm", show=True, priority=False),
+        Binding("down", "to_list", "choices", show=False),
     ]
 
     action_name = "accept"
@@ -74,7 +75,7 @@ class ReasonScreen(ModalScreen[bool]):
             )
             yield DialogInput(id="reason", placeholder="why, in a sentence")
             if self.recent:
-                yield Label("Recent reasons: Enter copies one into the reason", classes="hint")
+                yield Label("Recent reasons (↓ to reach them): Enter copies one", classes="hint")
                 yield OptionList(*_options(self.recent), id="recent")
             yield Static(id="messages", markup=False)
             with Horizontal(id="buttons"):
@@ -114,6 +115,15 @@ class ReasonScreen(ModalScreen[bool]):
 
     def action_confirm(self) -> None:
         self.confirm()
+
+    def action_to_list(self) -> None:
+        """↓ in a text field moves into the list of choices under it (suggestions, reasons)."""
+        focused = self.focused
+        if not isinstance(focused, Input):
+            return
+        target = {"new-name": "#suggestions", "reason": "#recent"}.get(str(focused.id))
+        if target and self.query(target):
+            self.query_one(target, OptionList).focus()
 
     def confirm(self) -> None:  # pragma: no cover - every dialog overrides it
         raise NotImplementedError
@@ -192,14 +202,12 @@ class DecisionScreen(ReasonScreen):
             )
             yield DialogInput(
                 id="new-name",
-                placeholder=row.label,
+                placeholder="type a new name, or ↓ to pick a suggestion",
                 suggester=SuggestFromList(self._labels(), case_sensitive=True),
             )
             names = self.suggested_names()
             if names:
-                yield Label(
-                    "Suggested neutral names: Enter copies one into the name", classes="hint"
-                )
+                yield Label("Suggested neutral names (↓): Enter copies one", classes="hint")
                 yield OptionList(*_options(names), id="suggestions")
         else:
             configured = self.session.config.decisions.retire_fallbacks.get(row.label)

@@ -15,40 +15,43 @@ from textual.widgets import Button, Footer, Static
 from labelreview.report import CAUTIONS
 
 KEYS: tuple[tuple[str, str], ...] = (
-    ("a", "accept the label as it is (asks for a reason)"),
-    ("r", "rename it: pick a suggested name or type one (asks for a reason)"),
-    ("x", "retire it, optionally moving its annotations to another label (asks for a reason)"),
-    ("u", "undo the most recent decision still in force (asks for a reason)"),
-    ("/", "search labels by text; Enter returns to the queue, Escape clears the search"),
+    ("a", "accept the label as it is"),
+    ("r", "rename it: pick a suggested name or type one"),
+    ("x", "retire it, optionally moving its annotations to another label"),
+    ("u", "undo the most recent decision still in force"),
+    ("/", "search labels; Enter back to the queue, Esc clears the search"),
     ("f", "filter by status, severity and category, with counts"),
     ("↑ ↓  j k", "move; PgUp PgDn, Home End (g G) jump"),
-    ("Tab", "move between the queue, the search and the detail pane"),
-    ("Enter / Esc", "in a dialog: confirm / cancel"),
-    ("?", "this help"),
+    ("Tab", "queue, search box, detail pane in turn"),
+    ("Enter / Esc", "in a dialog: confirm / cancel; ↓ reaches the lists"),
+    ("?", "this help; ctrl+p opens the command palette (themes, all keys)"),
     ("q", "quit (every decision is already saved)"),
 )
 
 
 def help_content(min_reason: int, reliable: float, tentative: float) -> Content:
-    parts: list[Content | str | tuple[str, str]] = [("Keys\n", "bold $primary")]
+    parts: list[Content | str | tuple[str, str]] = [
+        ("Keys", "bold $primary"),
+        ("  (a, r, x and u each ask for a reason)\n", "$text-muted"),
+    ]
     for key, text in KEYS:
         parts += [(f"  {key:<12}", "bold"), text, "\n"]
     parts += [
         ("\nWhat the columns say\n", "bold $primary"),
-        "  STATUS    open (no decision yet), accepted, renamed or retired, from the log\n",
-        "  SEVERITY  high, medium or low: the most serious reason the label was flagged for\n",
-        "  ITEMS     distinct items carrying the label\n",
-        "  ALPHA     the label's own Krippendorff's alpha (given / not given); ",
+        "STATUS: open (no decision yet), accepted, renamed or retired, as the log says.\n",
+        "SEVERITY: high, medium or low, the most serious reason the label was flagged for.\n",
+        "ITEMS: distinct items carrying the label.\n",
+        "ALPHA: the label's own Krippendorff's alpha (given or not given by each annotator); ",
         f"at or above {reliable:g} reliable, from {tentative:g} tentative, below that unreliable; ",
-        "– when there are too few items to measure it\n",
+        "– when too few items carry it, … while it is being measured.\n",
         ("\nDecisions\n", "bold $primary"),
-        f"  Every decision needs a reason of at least {min_reason} characters. It is written "
+        f"Every decision needs a reason of at least {min_reason} characters. It is written "
         "to the decision log and synced to disk before the queue shows it. A later decision on the "
         "same label replaces the earlier one; undo adds an entry and keeps the history.\n",
         ("\nCautions\n", "bold $primary"),
     ]
     for caution in CAUTIONS:
-        parts += ["  • ", caution, "\n"]
+        parts += ["• ", caution, "\n"]
     return Content.assemble(*parts)
 
 

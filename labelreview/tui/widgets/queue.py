@@ -71,7 +71,7 @@ class QueueView(ScrollView, can_focus=True):
     """Flagged labels, most urgent first, with status, severity, categories, items, alpha."""
 
     BINDINGS = [
-        Binding("down,j", "cursor_down", "move", key_display="↑↓ j k"),
+        Binding("down,j", "cursor_down", "move", key_display="↑↓jk"),
         Binding("up,k", "cursor_up", "up", show=False),
         Binding("pagedown", "page_down", "page down", show=False),
         Binding("pageup", "page_up", "page up", show=False),
@@ -273,7 +273,7 @@ class QueueView(ScrollView, can_focus=True):
         return self._base_style
 
     def render_line(self, y: int) -> Strip:
-        width = self.size.width
+        width = self.scrollable_content_region.width  # without the scrollbar
         base = self.base_style
         if y == 0:
             return self._header(Columns.fit(width), width)
