@@ -146,6 +146,7 @@ class QueueView(ScrollView, can_focus=True):
         self._last_posted: QueueRow | None = None
         self._line_cache: dict[tuple[object, ...], Strip] = {}
         self._base_style: Style | None = None
+        self._cell_styles: dict[str, Style] = {}
         """Drawn lines by (row, status, alpha, cursor state, width): repaints after a layout
         change cost a lookup per line."""
 
@@ -257,11 +258,22 @@ class QueueView(ScrollView, can_focus=True):
     # -- drawing -------------------------------------------------------------------------------
 
     def _style(self, name: str) -> Style:
-        return self.get_component_rich_style(f"queue-view--{name}", partial=True)
+        """A cell's foreground (colour, bold, italic) from its component class.
+
+        Taken from the full style so that colours with alpha ($text-muted) come out blended
+        with the background, then stripped of the background so a cursor row keeps its own.
+        """
+        style = self._cell_styles.get(name)
+        if style is None:
+            full = self.get_component_rich_style(f"queue-view--{name}")
+            style = Style(color=full.color, bold=full.bold, italic=full.italic)
+            self._cell_styles[name] = style
+        return style
 
     def notify_style_update(self) -> None:
         super().notify_style_update()
         self._line_cache.clear()
+        self._cell_styles.clear()
         self._base_style = None
 
     @property
