@@ -487,3 +487,47 @@ async def test_keys_move_and_the_footer_lists_them(session):
         assert isinstance(app.screen, HelpScreen)
         await pilot.press("escape")
         assert not isinstance(app.screen, HelpScreen)
+
+
+async def test_the_readme_walkthrough(session, log_path):
+    # README, "A session, step by step": the same keys, in the same order.
+    app = ReviewApp(session=session)
+    async with app.run_test(size=SIZE) as pilot:
+        await opened(app, pilot)
+        assert "reviewed 0 of 27" in text_of(app, "#progress-text")
+        # 2. retire the first label, no fallback
+        assert app.current is not None
+        assert app.current.label == "people/looks/suspicious_looking"
+        assert "0.072" in detail_text(app) and "unreliable" in detail_text(app)
+        await pilot.press("x", "enter")  # Enter in the empty fallback: on to the reason
+        assert app.screen.query_one("#reason", Input).has_focus
+        await pilot.press(*"guesses a crime from how someone looks", "enter")
+        assert "× retired" in queue_line(app, "people/looks/suspicious_looking")
+        assert "reviewed 1 of 27" in text_of(app, "#progress-text")
+        # 3. search, rename to the suggestion, confirm the merge
+        await pilot.press("/", *"lady", "enter")
+        assert [r.label for r in app.shown] == [CLEANING_LADY]
+        await pilot.press("r", "down", "enter")
+        set_reason(app, REASON)
+        await pilot.press("enter")
+        assert "already exists" in text_of(app, "#messages")
+        await pilot.press("enter")
+        # 4. undo with an offered reason
+        await pilot.press("u", "down")
+        recent = app.screen.query_one("#recent", OptionList)
+        while "decided by mistake" not in str(recent.highlighted_option.prompt):
+            await pilot.press("down")
+        await pilot.press("enter", "enter")
+        assert "· open" in queue_line(app, CLEANING_LADY)
+        # 5. clear the search, filter open + high
+        await pilot.press("/", "escape", "f", "down", "right", "down", "enter")
+        assert app.shown and all(r.status == "open" and r.severity == "high" for r in app.shown)
+        await pilot.press("q")
+    entries = log_entries(log_path)
+    assert [(e["kind"], e.get("action")) for e in entries] == [
+        ("decision", "retire"),
+        ("decision", "rename"),
+        ("revoke", None),
+    ]
+    assert entries[1]["new_label"] == CLEANER and entries[1]["merge"] is True
+    assert entries[2]["reason"] == "decided by mistake; reopening for another look"

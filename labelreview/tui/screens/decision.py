@@ -117,13 +117,16 @@ class ReasonScreen(ModalScreen[bool]):
         self.confirm()
 
     def action_to_list(self) -> None:
-        """↓ in a text field moves into the list of choices under it (suggestions, reasons)."""
+        """↓ in a text field moves into the list under it (suggestions, reasons), else on to
+        the reason."""
         focused = self.focused
         if not isinstance(focused, Input):
             return
         target = {"new-name": "#suggestions", "reason": "#recent"}.get(str(focused.id))
         if target and self.query(target):
             self.query_one(target, OptionList).focus()
+        elif focused.id != "reason":
+            self.query_one("#reason", Input).focus()
 
     def confirm(self) -> None:  # pragma: no cover - every dialog overrides it
         raise NotImplementedError
