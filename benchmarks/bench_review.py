@@ -82,7 +82,7 @@ class Timed(ReviewApp):
     # Usable = the first screen refresh after the queue was filled (rows drawn, keys taken).
     def _loaded(self, *args):
         # Queued first, so it runs right after the refresh that draws the filled queue.
-        self.call_after_refresh(lambda: painted.set_result(time.time()))
+        self.call_after_refresh(lambda: painted.done() or painted.set_result(time.time()))
         super()._loaded(*args)
 
 async def main():
@@ -108,7 +108,9 @@ async def main():
         def timed_show(content):
             show(content)
             if not shown.done():
-                app.call_after_refresh(lambda: shown.set_result(time.perf_counter()))
+                app.call_after_refresh(
+                    lambda: shown.done() or shown.set_result(time.perf_counter())
+                )
         pane.show = timed_show
         start = time.perf_counter()
         app._driver.send_message(events.Key("down", None))

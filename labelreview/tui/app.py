@@ -13,7 +13,7 @@ import gc
 import traceback
 from collections.abc import Iterable
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from textual import events, on, work
 from textual.app import App, ComposeResult
@@ -22,10 +22,8 @@ from textual.containers import Center, Horizontal, Vertical
 from textual.content import Content
 from textual.widgets import ContentSwitcher, Footer, Input, Label, ProgressBar, Static
 
-from labelreview.agreement import LabelAgreement
 from labelreview.decisions import Entry
 from labelreview.errors import LabelReviewError, LogLockedError
-from labelreview.evidence import LabelEvidence, gather_evidence, label_agreement
 from labelreview.review import DecisionRequest, ReviewSession
 from labelreview.tui.filters import FilterState, apply_filters
 from labelreview.tui.loading import STEPS, ReviewSource
@@ -36,6 +34,12 @@ from labelreview.tui.screens.info import HelpScreen, MessageScreen, help_content
 from labelreview.tui.theme import DEFAULT_THEME, THEMES
 from labelreview.tui.widgets.detail import DetailPane, detail_content
 from labelreview.tui.widgets.queue import QueueView
+
+if TYPE_CHECKING:
+    # The agreement engine (numpy, scipy) loads in the background worker, after the queue is
+    # on screen: importing it up front added about 0.3 s to every launch.
+    from labelreview.agreement import LabelAgreement
+    from labelreview.evidence import LabelEvidence
 
 DONE_WORDS = {"accept": "accepted", "rename": "renamed", "retire": "retired"}
 
@@ -188,6 +192,8 @@ class ReviewApp(App[int]):
     def _measure(self, session: ReviewSession) -> None:
         """Agreement, then annotator counts and example items (the queue is usable meanwhile)."""
         try:
+            from labelreview.evidence import gather_evidence, label_agreement
+
             session.fingerprint()  # hashes the input files once; every decision records it
             by_label, note = label_agreement(session.dataset)
             self.call_from_thread(self._agreement_ready, by_label, note)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from textual.binding import Binding
 from textual.content import Content
 from textual.geometry import Size
@@ -10,8 +12,10 @@ from textual.strip import Strip
 from textual.visual import Visual
 
 from labelreview.decisions import Entry, LogState
-from labelreview.evidence import LabelEvidence
 from labelreview.tui.rows import QueueRow
+
+if TYPE_CHECKING:
+    from labelreview.evidence import LabelEvidence
 
 SEVERITY_STYLE = {"high": "bold $error", "medium": "bold $warning", "low": "$text-muted"}
 STATUS_STYLE = {
