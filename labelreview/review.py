@@ -95,6 +95,8 @@ class ReviewSession:
     _writer: LogWriter | None = field(default=None, init=False, repr=False)
     _fingerprint: Fingerprint | None = field(default=None, init=False, repr=False)
     _stamp: tuple[int, int] | None = field(default=None, init=False, repr=False)
+    _name_scanner: Scanner | None = field(default=None, init=False, repr=False)
+    _labels: frozenset[str] | None = field(default=None, init=False, repr=False)
 
     def __post_init__(self) -> None:
         if not self.flags:
@@ -157,9 +159,11 @@ class ReviewSession:
         return self.scanned.lexicon.content_hash
 
     @property
-    def labels(self) -> set[str]:
+    def labels(self) -> frozenset[str]:
         """Every label the taxonomy or the annotations use."""
-        return set(self.scanned.result.usage)
+        if self._labels is None:
+            self._labels = frozenset(self.scanned.result.usage)
+        return self._labels
 
     def fingerprint(self) -> Fingerprint:
         """The dataset's input fingerprint (computed once per session)."""
@@ -299,13 +303,16 @@ class ReviewSession:
         )
 
     def _scan_name(self, name: str) -> str:
-        scanner = Scanner(
-            self.scanned.lexicon,
-            self.scanned.result.subjects,
-            fuzzy_threshold=self.config.scan.fuzzy_threshold,
-            fuzzy_min_length=self.config.scan.fuzzy_min_length,
-        )
-        return "; ".join(dict.fromkeys(f.reason for f in scanner.scan_label(name)))
+        # One scanner per session: building it costs about 0.1 s, and the review app checks
+        # a new name as it is typed.
+        if self._name_scanner is None:
+            self._name_scanner = Scanner(
+                self.scanned.lexicon,
+                self.scanned.result.subjects,
+                fuzzy_threshold=self.config.scan.fuzzy_threshold,
+                fuzzy_min_length=self.config.scan.fuzzy_min_length,
+            )
+        return "; ".join(dict.fromkeys(f.reason for f in self._name_scanner.scan_label(name)))
 
     def _body(self, check: DecisionCheck, curator: str) -> dict[str, Any]:
         request = check.request
