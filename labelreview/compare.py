@@ -19,12 +19,10 @@ The result is a :class:`Comparison`; the CLI prints it or writes its ``to_dict()
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Literal
 
 from labelreview.decisions import Entry, LogState
-from labelreview.errors import LabelReviewError
 from labelreview.model import SEVERITY_RANK, Flag
 
 if TYPE_CHECKING:
@@ -194,26 +192,16 @@ class Comparison:
 
 def _label_alphas(session: ReviewSession) -> tuple[dict[str, float] | None, str | None]:
     """Per-label alpha by label, or (None, why not)."""
-    frame = session.dataset.annotations
-    if frame is None or not len(frame):
-        return None, "no annotations"
-    if frame["annotator"].nunique() < 2:
-        return None, "fewer than two annotators, so agreement is undefined"
-    # The review queue's data signals already ran the agreement report for this session.
+    # The review queue's data signals ran the agreement report for this session already.
     computed = session.signals().agreement
     if computed is not None:
         return {a.label: float(a.alpha) for a in computed.per_label if a.alpha is not None}, None
-    try:
-        from labelreview.agreement import UndefinedAgreementWarning, per_label_alpha
-    except ImportError:  # pragma: no cover - the agreement engine ships with labelreview
-        return None, "the agreement engine is not available"
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UndefinedAgreementWarning)
-        try:
-            _, labels = per_label_alpha(frame, min_items=session.config.agreement.min_items)
-        except LabelReviewError as exc:
-            return None, str(exc)
-    return {a.label: float(a.alpha) for a in labels if a.alpha is not None}, None
+    from labelreview.evidence import label_agreement
+
+    labels, reason = label_agreement(session.dataset)
+    if reason is not None:
+        return None, reason
+    return {a.label: float(a.alpha) for a in labels.values() if a.alpha is not None}, None
 
 
 def _covered_in_new(state: LogState | None, label: str, lexicon_hash: str) -> Entry | None:

@@ -151,8 +151,9 @@ class Flag:
     """Distinct items carrying the label."""
     signals: dict[str, Any] = field(default_factory=dict)
     """Data signals by name (``contested``, ``disparity``, ``annotator_skew``), JSON-ready."""
-    score: float = 0.0
-    """The queue's priority, 0 to 100 (formula in the README and :mod:`labelreview.queue`)."""
+    score: float | None = None
+    """The queue's priority, 0 to 100 (formula in the README and :mod:`labelreview.queue`);
+    None for a flag the queue did not build (a bare scan's flags)."""
     score_parts: dict[str, float] = field(default_factory=dict)
     """Each score component (0 to 1) before weighting, by name."""
     evidence: tuple[Reason, ...] = ()

@@ -341,7 +341,12 @@ def build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -
             )
         )
     entries.sort(
-        key=lambda f: (-f.score, -SEVERITY_RANK[f.severity], -f.annotations, f.label.casefold())
+        key=lambda f: (
+            -(f.score or 0.0),
+            -SEVERITY_RANK[f.severity],
+            -f.annotations,
+            f.label.casefold(),
+        )
     )
     notes = list(signals.notes)
     return Queue(

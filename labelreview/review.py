@@ -103,6 +103,9 @@ class ReviewSession:
     _signals: DataSignals | None = field(default=None, init=False, repr=False)
     _queue: Queue | None = field(default=None, init=False, repr=False)
     _flags: list[Flag] | None = field(default=None, init=False, repr=False)
+    _by_label: dict[str, Flag] | None = field(default=None, init=False, repr=False)
+    _name_scanner: Scanner | None = field(default=None, init=False, repr=False)
+    _labels: frozenset[str] | None = field(default=None, init=False, repr=False)
 
     def __post_init__(self) -> None:
         self.log = DecisionLog(self.config.log_path, clock=self.clock)
@@ -162,9 +165,11 @@ class ReviewSession:
         return self.scanned.lexicon.content_hash
 
     @property
-    def labels(self) -> set[str]:
+    def labels(self) -> frozenset[str]:
         """Every label the taxonomy or the annotations use."""
-        return set(self.scanned.result.usage)
+        if self._labels is None:
+            self._labels = frozenset(self.scanned.result.usage)
+        return self._labels
 
     def fingerprint(self) -> Fingerprint:
         """The dataset's input fingerprint (computed once per session)."""
@@ -195,9 +200,17 @@ class ReviewSession:
             self._flags = list(self.queue().entries)
         return self._flags
 
+    @flags.setter
+    def flags(self, value: Iterable[Flag]) -> None:
+        """Hand the session a ready list (benchmarks, tests); it replaces the queue's entries."""
+        self._flags = list(value)
+        self._by_label = None
+
     def flag(self, label: str) -> Flag | None:
-        """The queue entry for ``label``, or None when nothing flags it."""
-        return self.queue().by_label.get(label)
+        """The entry for ``label`` in :attr:`flags`, or None when nothing flags it."""
+        if self._by_label is None:
+            self._by_label = {f.label: f for f in self.flags}
+        return self._by_label.get(label)
 
     def state(self) -> LogState:
         """The fold over the log (re-read unless this session holds the writer)."""
@@ -328,13 +341,16 @@ class ReviewSession:
         )
 
     def _scan_name(self, name: str) -> str:
-        scanner = Scanner(
-            self.scanned.lexicon,
-            self.scanned.result.subjects,
-            fuzzy_threshold=self.config.scan.fuzzy_threshold,
-            fuzzy_min_length=self.config.scan.fuzzy_min_length,
-        )
-        return "; ".join(dict.fromkeys(f.reason for f in scanner.scan_label(name)))
+        # One scanner per session: building it costs about 0.1 s, and the review app checks
+        # a new name as it is typed.
+        if self._name_scanner is None:
+            self._name_scanner = Scanner(
+                self.scanned.lexicon,
+                self.scanned.result.subjects,
+                fuzzy_threshold=self.config.scan.fuzzy_threshold,
+                fuzzy_min_length=self.config.scan.fuzzy_min_length,
+            )
+        return "; ".join(dict.fromkeys(f.reason for f in self._name_scanner.scan_label(name)))
 
     def _body(self, check: DecisionCheck, curator: str) -> dict[str, Any]:
         request = check.request

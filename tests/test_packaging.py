@@ -40,6 +40,7 @@ def test_wheel_contains_lexicons_sample_sets_and_word_list(tmp_path: Path):
         "labelreview/_data/sample_sets/harbour_archive/labelreview.yaml",
         "labelreview/data/english_words.txt.gz",
         "labelreview/py.typed",
+        "labelreview/tui/review.tcss",  # the review app's stylesheet (not a .py file)
     }
     assert expected <= names, sorted(expected - names)
     base_files = {p.name for p in (ROOT / "lexicons" / "base").glob("*.yaml")}

@@ -31,10 +31,11 @@ def _register() -> None:
     from labelreview.cli.decide import decide
     from labelreview.cli.lexicon import lexicon
     from labelreview.cli.log import log
+    from labelreview.cli.review import review
     from labelreview.cli.scan import scan
     from labelreview.cli.setup import demo, init
 
-    for command in (scan, lexicon, init, demo, decide, log):
+    for command in (scan, lexicon, init, demo, review, decide, log):
         cli.add_command(command)
     from labelreview.cli.agreement import agreement
     from labelreview.cli.queue import queue

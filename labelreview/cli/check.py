@@ -111,7 +111,8 @@ def gate_text(result: GateResult) -> str:
             if gate_flag.location is not None:
                 loc = gate_flag.location
                 where = f" ({loc.path.name}" + (f" line {loc.line})" if loc.line else ")")
-            lines.append(f"  {flag.severity:6}  {flag.label}{where}  score {flag.score:.1f}")
+            score = "" if flag.score is None else f"  score {flag.score:.1f}"
+            lines.append(f"  {flag.severity:6}  {flag.label}{where}{score}")
             if flag.categories:
                 lines.append(f"          categories: {', '.join(flag.categories)}")
             if flag.signal_names:

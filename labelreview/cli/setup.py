@@ -8,6 +8,7 @@ from pathlib import Path
 import click
 
 from labelreview.cli._common import handle_errors, note
+from labelreview.cli.review import has_terminal, run_review
 from labelreview.cli.scan import run_scan, scan_table
 from labelreview.errors import UsageError
 
@@ -41,12 +42,19 @@ def init(dataset_dir: Path) -> None:
     show_default=True,
     help="Which bundled sample set to use.",
 )
+@click.option(
+    "--no-app",
+    is_flag=True,
+    help="Print the scan instead of opening the review app (the default without a terminal).",
+)
+@click.option("--curator", help="Who decides in the review app (default: the OS user).")
 @handle_errors
-def demo(target: Path, sample: str) -> None:
-    """Copy a bundled, invented sample set to a working folder and scan it.
+def demo(target: Path, sample: str, no_app: bool, curator: str | None) -> None:
+    """Copy a bundled, invented sample set to a working folder and open the review app on it.
 
-    An existing demo folder is reused as it is, so changes made there are never lost; any
-    other non-empty folder is refused.
+    An existing demo folder is reused as it is, so changes made there (and decisions already
+    logged) are never lost; any other non-empty folder is refused. Without a terminal, or with
+    --no-app, the scan is printed instead.
     """
     from labelreview._resources import sample_sets_dir
 
@@ -66,6 +74,9 @@ def demo(target: Path, sample: str) -> None:
         note(f"copied the sample set '{sample}' to {target}")
     else:
         note(f"reusing the demo folder {target}")
+    if not no_app and has_terminal():
+        run_review(target, curator=curator)
+        return
     result = run_scan(target).result
     click.echo(scan_table(result))
-    note(f"next: labelreview scan {target} --format json")
+    note(f"next: labelreview review {target}  (the review app; it needs a terminal)")
