@@ -43,7 +43,7 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from labelreview.config import QueueConfig
-from labelreview.model import SEVERITY_RANK, Finding, Flag, Reason, Severity
+from labelreview.model import SEVERITY_RANK, Flag, Reason, Severity
 from labelreview.report import CAUTIONS, ScanResult, flags_from_scan
 from labelreview.signals import (
     ContestedLabel,
@@ -242,13 +242,6 @@ def proxy_reason(p: ProxyResult) -> Reason:
 # -- building the queue ----------------------------------------------------------------------
 
 
-def _lexicon_evidence(flag: Flag, findings: list[Finding]) -> list[Reason]:
-    term_of: dict[str, str] = {}
-    for finding in findings:
-        term_of.setdefault(finding.reason, finding.term)
-    return [Reason("lexicon", text, term_of.get(text)) for text in flag.reasons]
-
-
 def build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -> Queue:
     """Merge the scan's findings and the data signals into ranked :class:`Flag` entries.
 
@@ -264,9 +257,6 @@ def build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -
     total_weight = sum(weights.values()) or 1.0
     settings = signals.settings
     lexicon = {f.label: f for f in flags_from_scan(result)}
-    findings: dict[str, list[Finding]] = {}
-    for finding in result.findings:
-        findings.setdefault(finding.label, []).append(finding)
     contested = {c.label: c for c in signals.contested}
     disparity: dict[str, list[DisparityResult]] = {}
     for d in signals.disparity:
@@ -280,22 +270,50 @@ def build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -
         if p.flagged:
             proxies.setdefault(p.attribute, []).append(p)
     most = max((u.annotations for u in result.usage.values()), default=0)
-    labels = list(lexicon) + [
-        label for label in {*contested, *disparity, *skew} if label not in lexicon
-    ]
+    log_most = math.log1p(most) if most > 0 else 0.0
+    data_labels = {*contested, *disparity, *skew}
+    w_lex, w_prev = weights["lexicon"], weights["prevalence"]
+    zero_parts = dict.fromkeys(weights, 0.0)
+    labels = list(lexicon) + [label for label in data_labels if label not in lexicon]
     entries: list[Flag] = []
     for label in labels:
         base = lexicon.get(label)
         use = result.usage.get(label)
         annotations = use.annotations if use is not None else 0
+        prevalence = math.log1p(annotations) / log_most if log_most else 0.0
+        if base is not None and label not in data_labels:
+            # Lexicon findings alone (the common case, thousands of labels): no data reasons.
+            lex = LEXICON_PART[base.severity]
+            score = 100.0 * (w_lex * lex + w_prev * prevalence) / total_weight
+            entries.append(
+                Flag(
+                    label=label,
+                    severity=base.severity,
+                    categories=base.categories,
+                    terms=base.terms,
+                    reasons=base.reasons,
+                    suggestions=base.suggestions,
+                    annotations=base.annotations,
+                    items=base.items,
+                    score=round(score, 1),
+                    score_parts={
+                        **zero_parts,
+                        "lexicon": round(lex, 4),
+                        "prevalence": round(prevalence, 4),
+                    },
+                    evidence=base.evidence,
+                )
+            )
+            continue
+        parts = dict.fromkeys(weights, 0.0)
+        parts["prevalence"] = prevalence
         severities: list[Severity] = []
         evidence: list[Reason] = []
-        parts = dict.fromkeys(weights, 0.0)
         data: dict[str, Any] = {}
         if base is not None:
             severities.append(base.severity)
             parts["lexicon"] = LEXICON_PART[base.severity]
-            evidence.extend(_lexicon_evidence(base, findings.get(label, [])))
+            evidence.extend(base.evidence)
         if label in disparity:
             found = sorted(disparity[label], key=lambda d: (d.ratio or 0.0, d.attribute))
             severities.append(config.severity["disparity"])  # type: ignore[arg-type]
@@ -320,8 +338,6 @@ def build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -
             parts["annotator_skew"] = max(1.0 - s.ratio for s in found_s)
             evidence.extend(skew_reason(s) for s in found_s)
             data["annotator_skew"] = [s.to_dict() for s in found_s]
-        if most > 0:
-            parts["prevalence"] = math.log1p(annotations) / math.log1p(most)
         score = 100.0 * sum(weights[k] * parts[k] for k in weights) / total_weight
         severity = max(severities, key=lambda s: SEVERITY_RANK[s])
         entries.append(

@@ -20,7 +20,7 @@ import pandas as pd
 from labelreview.dataset import Dataset
 from labelreview.errors import UsageError
 from labelreview.lexicon import Lexicon, load_lexicon
-from labelreview.model import SEVERITY_RANK, Finding, Flag
+from labelreview.model import SEVERITY_RANK, Finding, Flag, Reason
 from labelreview.scan import Scanner
 
 CAUTIONS: tuple[str, ...] = (
@@ -79,7 +79,11 @@ class ScanResult:
 
 
 def flags_from_scan(result: ScanResult) -> list[Flag]:
-    """One :class:`Flag` per flagged label, most severe first, then most used, then by name."""
+    """One :class:`Flag` per flagged label, most severe first, then most used, then by name.
+
+    Each reason is also in ``evidence`` as ``Reason("lexicon", sentence, term)``; the review
+    queue (:mod:`labelreview.queue`) adds the data signals and the score.
+    """
     by_label: dict[str, list[Finding]] = {}
     for finding in result.findings:
         by_label.setdefault(finding.label, []).append(finding)
@@ -87,16 +91,20 @@ def flags_from_scan(result: ScanResult) -> list[Flag]:
     for label, found in by_label.items():
         found = sorted_findings(found)
         use = result.usage.get(label, LabelUse())
+        term_of: dict[str, str] = {}
+        for f in found:
+            term_of.setdefault(f.reason, f.term)
         flags.append(
             Flag(
                 label=label,
                 severity=found[0].severity,
                 categories=tuple(dict.fromkeys(f.category for f in found)),
                 terms=tuple(dict.fromkeys(f.term for f in found)),
-                reasons=tuple(dict.fromkeys(f.reason for f in found)),
+                reasons=tuple(term_of),
                 suggestions=tuple(dict.fromkeys(s for f in found for s in f.suggestions)),
                 annotations=use.annotations,
                 items=use.items,
+                evidence=tuple(Reason("lexicon", text, term) for text, term in term_of.items()),
             )
         )
     flags.sort(key=lambda f: (-SEVERITY_RANK[f.severity], -f.annotations, f.label.casefold()))

@@ -407,6 +407,7 @@ def agreement_report(
     confidence: float = 0.95,
     leave_out: bool = True,
     top_splits: int = 10,
+    pairwise: bool = True,
 ) -> AgreementResult:
     """Every agreement figure for one annotation frame.
 
@@ -422,6 +423,9 @@ def agreement_report(
         min_pair_items: Shared items an annotator pair needs for Cohen's kappa.
         confidence: Coverage of the bootstrap interval (percentile method).
         leave_out: Compute alpha with each annotator left out (the slowest part).
+        pairwise: Compute Cohen's kappa for every annotator pair (False: skip it with a
+            reason). Its confusion matrices grow with the square of the number of labels, so
+            the review queue, which does not use it, turns it off.
         top_splits: How many of the most frequent value splits to list.
 
     Returns:
@@ -488,6 +492,8 @@ def agreement_report(
     pair_reason: str | None = None
     if coded.multi:
         pair_reason = "multi-label data: Cohen's kappa needs one label per annotator and item"
+    elif not pairwise:
+        pair_reason = "not computed (pairwise=False)"
     else:
         found = pairwise_cohen(coded, min_pair_items, weighted=level != "nominal")
         skipped = found.skipped

@@ -138,6 +138,7 @@ def compute_signals(dataset: Dataset, settings: SignalsConfig | None = None) -> 
                     min_pair_items=settings_a.min_pair_items,
                     leave_out=True,
                     top_splits=SPLITS_LISTED,
+                    pairwise=False,  # not used here; grows with the square of the labels
                 )
         except LabelReviewError as exc:
             notes.append(

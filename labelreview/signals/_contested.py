@@ -66,25 +66,28 @@ def _members(value: str, multi: bool) -> set[str]:
     return set(value.split(SET_SEPARATOR)) if multi else {value}
 
 
-def _partners(result: AgreementResult, label: str) -> tuple[Split, ...]:
-    """What annotators gave instead of ``label``, summed over the listed split pairs.
+def _partners(result: AgreementResult, labels: set[str]) -> dict[str, tuple[Split, ...]]:
+    """What annotators gave instead of each label in ``labels``, from one pass over the splits.
 
     Single-label data: the other label of each split. Multi-label data (values are label sets):
-    the labels in the other set that are not in the set with ``label``; none at all counts as
+    the labels in the other set that are not in the set with the label; none at all counts as
     :data:`NOTHING`.
     """
-    totals: dict[str, float] = {}
+    totals: dict[str, dict[str, float]] = {}
     for pair in result.split_pairs:
         first = _members(pair.first, result.multi_label)
         second = _members(pair.second, result.multi_label)
-        if (label in first) == (label in second):
-            continue
-        mine, other = (first, second) if label in first else (second, first)
-        instead = sorted(other - mine) or [NOTHING]
-        for name in instead:
-            totals[name] = totals.get(name, 0.0) + float(pair.coincidences)
-    ranked = sorted(totals.items(), key=lambda kv: (-kv[1], kv[0]))[:PARTNERS]
-    return tuple(Split(other=name, coincidences=count) for name, count in ranked)
+        for mine, other in ((first, second), (second, first)):
+            instead = sorted(other - mine) or [NOTHING]
+            for label in (mine - other) & labels:
+                found = totals.setdefault(label, {})
+                for name in instead:
+                    found[name] = found.get(name, 0.0) + float(pair.coincidences)
+    out: dict[str, tuple[Split, ...]] = {}
+    for label, found in totals.items():
+        ranked = sorted(found.items(), key=lambda kv: (-kv[1], kv[0]))[:PARTNERS]
+        out[label] = tuple(Split(other=name, coincidences=count) for name, count in ranked)
+    return out
 
 
 def contested_labels(
@@ -99,20 +102,22 @@ def contested_labels(
         labels: Only these labels (None: all).
     """
     wanted = None if labels is None else set(labels)
-    out = []
-    for row in result.per_label:
-        if row.alpha is None or row.alpha >= threshold:
-            continue
-        if wanted is not None and row.label not in wanted:
-            continue
-        out.append(
-            ContestedLabel(
-                label=row.label,
-                alpha=float(row.alpha),
-                n_items=row.n_items,
-                prevalence=float(row.prevalence),
-                threshold=threshold,
-                splits=_partners(result, row.label),
-            )
+    rows = [
+        row
+        for row in result.per_label
+        if row.alpha is not None
+        and row.alpha < threshold
+        and (wanted is None or row.label in wanted)
+    ]
+    partners = _partners(result, {row.label for row in rows})
+    return [
+        ContestedLabel(
+            label=row.label,
+            alpha=float(row.alpha),  # type: ignore[arg-type]  # filtered above
+            n_items=row.n_items,
+            prevalence=float(row.prevalence),
+            threshold=threshold,
+            splits=partners.get(row.label, ()),
         )
-    return out
+        for row in rows
+    ]
