@@ -304,3 +304,13 @@ def test_multi_label_leave_one_out_equals_alpha_computed_without_that_annotator(
         rest = data[data["annotator"] != entry.annotator]
         alone = agreement_report(rest, bootstrap=0, leave_out=False)
         assert entry.alpha_without == pytest.approx(alone.alpha, abs=1e-10), entry.annotator
+
+
+def test_pairwise_false_skips_only_cohens_kappa():
+    data = seeded_frame(3)
+    full = agreement_report(data, bootstrap=0)
+    light = agreement_report(data, bootstrap=0, pairwise=False)
+    assert full.pairwise_cohen and light.pairwise_cohen == ()
+    assert light.pairwise_cohen_reason == "not computed (pairwise=False)"
+    assert light.alpha == full.alpha and light.per_label == full.per_label
+    assert light.per_annotator == full.per_annotator and light.split_pairs == full.split_pairs
