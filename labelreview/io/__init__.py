@@ -16,16 +16,20 @@ from labelreview.io._annotations import (
 )
 from labelreview.io._common import MAX_FIELD_CHARS
 from labelreview.io._items import load_items
+from labelreview.io._stream import STREAM_FORMATS, AnnotationStream, fold_items
 from labelreview.io._taxonomy import TAXONOMY_FORMATS, load_taxonomy
 
 __all__ = [
     "ANNOTATION_FORMATS",
+    "AnnotationStream",
     "LAYOUTS",
     "MAX_FIELD_CHARS",
+    "STREAM_FORMATS",
     "TAXONOMY_FORMATS",
     "DuplicateRowsWarning",
     "LoadWarning",
     "detect_format",
+    "fold_items",
     "load_annotations",
     "load_items",
     "load_taxonomy",
