@@ -9,7 +9,8 @@ nothing, or collect the events.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 
 
@@ -39,3 +40,14 @@ def no_progress(_event: ProgressEvent) -> None:
 def tell(progress: ProgressCallback | None) -> ProgressCallback:
     """``progress``, or a callback that ignores every event."""
     return progress if progress is not None else no_progress
+
+
+@contextmanager
+def phase(progress: ProgressCallback | None, task: str) -> Iterator[None]:
+    """Report a step whose size is unknown: a start event now, a finished event at the end."""
+    report = tell(progress)
+    report(ProgressEvent(task, 0, None, unit="steps"))
+    try:
+        yield
+    finally:
+        report(ProgressEvent(task, 1, 1, unit="steps", finished=True))

@@ -16,7 +16,7 @@ from labelreview.io._annotations import (
 )
 from labelreview.io._common import MAX_FIELD_CHARS
 from labelreview.io._items import load_items
-from labelreview.io._stream import STREAM_FORMATS, AnnotationStream, fold_items
+from labelreview.io._stream import STREAM_FORMATS, AnnotationStream, TableStream, fold_items
 from labelreview.io._taxonomy import TAXONOMY_FORMATS, load_taxonomy
 
 __all__ = [
@@ -26,6 +26,7 @@ __all__ = [
     "MAX_FIELD_CHARS",
     "STREAM_FORMATS",
     "TAXONOMY_FORMATS",
+    "TableStream",
     "DuplicateRowsWarning",
     "LoadWarning",
     "detect_format",

@@ -91,22 +91,18 @@ class StreamCounts:
     """The pass :func:`fold_items` took: ``sorted`` or ``partition``."""
 
 
-class AnnotationStream:
-    """One annotation file (or a folder of Parquet files), read in batches.
+class TableStream:
+    """A table file (CSV, TSV, JSON Lines, Parquet or a folder of Parquet files) read in batches.
 
     Args:
         path: The file or folder; only read.
         fmt: ``auto`` or one of :data:`STREAM_FORMATS`.
-        layout: ``long`` or ``wide`` (as for :func:`load_annotations`).
-        columns: Role -> the file's column (roles left out are detected).
-        annotator_columns: Wide layout: the annotator columns.
-        multi_label_separator: Split cells holding it (None: never).
         encoding: Text encoding of CSV, TSV and JSON Lines files (None: UTF-8).
         batch_bytes: Text per batch; ``batch_rows``: rows per Parquet batch.
-        extra_columns: Other columns to carry along in :meth:`raw_batches` (free text).
+        kind: ``annotations`` or ``items`` (for messages and format detection).
 
     Raises:
-        LoadError: Missing or empty file, undecodable header, columns that cannot be told apart.
+        LoadError: Missing or empty file, or an undecodable header.
         UsageError: A format that cannot be read in batches (COCO, a JSON list).
     """
 
@@ -115,20 +111,12 @@ class AnnotationStream:
         path: Path,
         *,
         fmt: str = "auto",
-        layout: str = "long",
-        columns: Mapping[str, str] | None = None,
-        annotator_columns: Sequence[str] = (),
-        multi_label_separator: str | None = "|",
         encoding: str | None = None,
         batch_bytes: int = BATCH_BYTES,
         batch_rows: int = BATCH_ROWS,
-        extra_columns: Sequence[str] = (),
+        kind: str = "annotations",
     ) -> None:
         self.path = Path(path)
-        if layout not in LAYOUTS:
-            raise UsageError(f"unknown layout '{layout}'; expected one of {', '.join(LAYOUTS)}")
-        if multi_label_separator == "":
-            raise UsageError("multi_label_separator must be a non-empty string or None")
         if fmt not in ANNOTATION_FORMATS:
             raise UsageError(
                 f"unknown annotation format '{fmt}'; expected one of "
@@ -140,7 +128,7 @@ class AnnotationStream:
         if self.path.is_dir():
             resolved = "parquet"
         elif fmt == "auto":
-            resolved = detect_format(self.path, kind="annotations", encoding=encoding)
+            resolved = detect_format(self.path, kind=kind, encoding=encoding)
         else:
             resolved = fmt
         if resolved not in STREAM_FORMATS:
@@ -152,24 +140,15 @@ class AnnotationStream:
         if self.path.is_file() and self.path.stat().st_size == 0:
             raise LoadError("the file is empty", source=str(self.path))
         self.format = resolved
-        self.layout = layout
-        self.annotator_columns = tuple(annotator_columns)
-        self.separator = multi_label_separator
         self.batch_bytes = int(batch_bytes)
         self.batch_rows = int(batch_rows)
         self.total_bytes = _size(self.path)
         self.file_columns = self._columns()
-        if layout == "wide":
-            self.chosen = self._wide_roles(columns)
-        else:
-            if annotator_columns:
-                raise ConfigError(
-                    "annotations.annotator_columns applies only to the wide layout",
-                    hint="Set annotations.layout: wide, or remove annotator_columns.",
-                    source=str(self.path),
-                )
-            self.chosen = resolve_columns(self.path, self.file_columns, ANNOTATION_COLUMNS, columns)
-        missing = [c for c in extra_columns if c not in self.file_columns]
+        self.wanted: list[str] = list(self.file_columns)
+
+    def check_columns(self, names: Sequence[str]) -> None:
+        """Refuse column names the file does not have, listing the ones it has."""
+        missing = [c for c in names if c not in self.file_columns]
         if missing:
             raise LoadError(
                 f"column '{missing[0]}' is not in the file; columns found: "
@@ -177,8 +156,9 @@ class AnnotationStream:
                 source=str(self.path),
                 line=1,
             )
-        self.extra_columns = tuple(extra_columns)
-        self.counts = StreamCounts()
+
+    def _needed(self) -> list[str]:
+        return list(self.wanted)
 
     # -- columns -------------------------------------------------------------------------------
 
@@ -223,25 +203,9 @@ class AnnotationStream:
             seen[name] = number
         return header
 
-    def _wide_roles(self, columns: Mapping[str, str] | None) -> dict[str, str]:
-        empty = pd.DataFrame({c: pd.Series(dtype=object) for c in self.file_columns})
-        table = Table(empty, self.format, lambda _row: None, list(self.file_columns))
-        _, chosen = _wide_frame(self.path, table, columns, self.annotator_columns)
-        return chosen
-
     @property
     def _delimiter(self) -> str:
         return "\t" if self.format == "tsv" else ","
-
-    def _needed(self) -> list[str]:
-        if self.layout == "wide":
-            needed = list(self.file_columns)
-        else:
-            needed = [self.chosen[r] for r in ANNOTATION_COLUMNS]
-        for column in self.extra_columns:
-            if column not in needed:
-                needed.append(column)
-        return needed
 
     # -- raw batches ---------------------------------------------------------------------------
 
@@ -454,6 +418,75 @@ class AnnotationStream:
                     line=reader.line_num,
                 )
         return LoadError(f"cannot parse the file: {arrow_message}", source=str(self.path))
+
+
+class AnnotationStream(TableStream):
+    """An annotation file read in batches, cleaned as :func:`load_annotations` cleans it.
+
+    Args:
+        path: The file or folder; only read.
+        fmt: ``auto`` or one of :data:`STREAM_FORMATS`.
+        layout: ``long`` or ``wide`` (as for :func:`load_annotations`).
+        columns: Role -> the file's column (roles left out are detected).
+        annotator_columns: Wide layout: the annotator columns.
+        multi_label_separator: Split cells holding it (None: never).
+        encoding: Text encoding of CSV, TSV and JSON Lines files (None: UTF-8).
+        batch_bytes: Text per batch; ``batch_rows``: rows per Parquet batch.
+        extra_columns: Other columns to carry along in :meth:`raw_batches` (free text).
+
+    Raises:
+        LoadError: Missing or empty file, undecodable header, columns that cannot be told apart.
+        UsageError: A format that cannot be read in batches (COCO, a JSON list).
+    """
+
+    def __init__(
+        self,
+        path: Path,
+        *,
+        fmt: str = "auto",
+        layout: str = "long",
+        columns: Mapping[str, str] | None = None,
+        annotator_columns: Sequence[str] = (),
+        multi_label_separator: str | None = "|",
+        encoding: str | None = None,
+        batch_bytes: int = BATCH_BYTES,
+        batch_rows: int = BATCH_ROWS,
+        extra_columns: Sequence[str] = (),
+    ) -> None:
+        if layout not in LAYOUTS:
+            raise UsageError(f"unknown layout '{layout}'; expected one of {', '.join(LAYOUTS)}")
+        if multi_label_separator == "":
+            raise UsageError("multi_label_separator must be a non-empty string or None")
+        super().__init__(
+            path, fmt=fmt, encoding=encoding, batch_bytes=batch_bytes, batch_rows=batch_rows
+        )
+        self.layout = layout
+        self.annotator_columns = tuple(annotator_columns)
+        self.separator = multi_label_separator
+        if layout == "wide":
+            self.chosen = self._wide_roles(columns)
+        else:
+            if annotator_columns:
+                raise ConfigError(
+                    "annotations.annotator_columns applies only to the wide layout",
+                    hint="Set annotations.layout: wide, or remove annotator_columns.",
+                    source=str(self.path),
+                )
+            self.chosen = resolve_columns(self.path, self.file_columns, ANNOTATION_COLUMNS, columns)
+        self.check_columns(extra_columns)
+        self.extra_columns = tuple(extra_columns)
+        self.counts = StreamCounts()
+        if layout == "wide":
+            needed = list(self.file_columns)
+        else:
+            needed = [self.chosen[r] for r in ANNOTATION_COLUMNS]
+        self.wanted = needed + [c for c in self.extra_columns if c not in needed]
+
+    def _wide_roles(self, columns: Mapping[str, str] | None) -> dict[str, str]:
+        empty = pd.DataFrame({c: pd.Series(dtype=object) for c in self.file_columns})
+        table = Table(empty, self.format, lambda _row: None, list(self.file_columns))
+        _, chosen = _wide_frame(self.path, table, columns, self.annotator_columns)
+        return chosen
 
     # -- clean rows ----------------------------------------------------------------------------
 
