@@ -20,9 +20,10 @@ from pathlib import Path
 import pandas as pd
 
 from labelreview.config import DatasetConfig
+from labelreview.dataset import Dataset
 from labelreview.errors import UsageError
 from labelreview.io import STREAM_FORMATS, AnnotationStream, detect_format, fold_items
-from labelreview.model import LoadReport
+from labelreview.model import LoadReport, TaxonomyLabel
 from labelreview.progress import ProgressCallback
 from labelreview.report import LabelUse, label_usage
 
@@ -68,6 +69,8 @@ def should_stream(config: DatasetConfig, requested: bool | None) -> bool:
     if not can_stream(config):
         return False
     path = annotation_path(config)
+    if path.is_dir():
+        return True  # a folder of Parquet files is only ever read in batches
     size = (
         sum(p.stat().st_size for p in path.rglob("*") if p.is_file())
         if path.is_dir()
@@ -126,10 +129,57 @@ def stream_usage(
     *,
     progress: ProgressCallback | None = None,
     temp_dir: Path | None = None,
-) -> tuple[dict[str, LabelUse], LoadReport]:
-    """Annotations and distinct items per label, over a file read in batches of whole items."""
+    pairs_for: set[str] | None = None,
+) -> tuple[dict[str, LabelUse], pd.DataFrame, LoadReport]:
+    """Annotations and distinct items per label, over a file read in batches of whole items.
 
-    def step(total: dict[str, LabelUse], batch: pd.DataFrame) -> dict[str, LabelUse]:
-        return add_usage(total, label_usage(batch)) if len(batch) else total
+    Args:
+        stream: The annotation file.
+        progress: Progress callback.
+        temp_dir: Where an unsorted file is partitioned.
+        pairs_for: Also collect the distinct (item, label) rows of these items (the items whose
+            text had a hit, for the labels beside each term).
 
-    return fold_items(stream, dict, step, progress=progress, temp_dir=temp_dir)
+    Returns:
+        The counts, the (item, label) rows asked for, and the load report.
+    """
+    wanted = pd.Index(sorted(pairs_for or ()))
+
+    def step(
+        state: tuple[dict[str, LabelUse], list[pd.DataFrame]], batch: pd.DataFrame
+    ) -> tuple[dict[str, LabelUse], list[pd.DataFrame]]:
+        total, pairs = state
+        if not len(batch):
+            return state
+        add_usage(total, label_usage(batch))
+        if len(wanted):
+            part = batch.loc[batch["item"].isin(wanted), ["item", "label"]].drop_duplicates()
+            if len(part):
+                pairs.append(part)
+        return total, pairs
+
+    (usage, pairs), report = fold_items(
+        stream, lambda: ({}, []), step, progress=progress, temp_dir=temp_dir
+    )
+    frame = (
+        pd.concat(pairs, ignore_index=True)
+        if pairs
+        else pd.DataFrame({"item": pd.Series(dtype=str), "label": pd.Series(dtype=str)})
+    )
+    return usage, frame, report
+
+
+def taxonomy_dataset(config: DatasetConfig) -> Dataset:
+    """The dataset with its taxonomy read and its annotations left to a stream or a cluster."""
+    from labelreview.io import load_taxonomy
+
+    labels: list[TaxonomyLabel] = []
+    reports: list[LoadReport] = []
+    tax = config.taxonomy
+    if tax is not None:
+        labels = load_taxonomy(tax.path, fmt=tax.format, encoding=tax.encoding)
+        used = tax.format if tax.format != "auto" else detect_format(tax.path, kind="taxonomy")
+        reports.append(LoadReport(path=str(tax.path), format=used, rows_read=len(labels)))
+    return Dataset(
+        root=config.root, config=config, annotations=None, taxonomy=labels, reports=reports
+    )

@@ -250,6 +250,15 @@ class Scanner:
         self._live: dict[str, bool] = {}
         self._vocabulary = english_words()
 
+    def __setstate__(self, state: dict[str, object]) -> None:
+        """Unpickling (the Dask engine ships scanners to its workers): exceptions are keyed by
+        the identity of their term, which a copy does not keep, so key them again."""
+        self.__dict__.update(state)
+        self._exceptions = {
+            id(term): tuple(tuple(tok) for tok in (term_tokens(e) for e in term.exceptions) if tok)
+            for term in self.lexicon.terms
+        }
+
     # -- building ---------------------------------------------------------------------------
 
     @staticmethod

@@ -35,15 +35,19 @@ import heapq
 import io
 import re
 from collections import Counter
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from labelreview.config import DatasetConfig
+from labelreview.errors import UsageError
 from labelreview.lexicon import Lexicon
 from labelreview.model import SEVERITY_RANK
+from labelreview.progress import ProgressCallback, ProgressEvent, tell
 from labelreview.scan import (
     ANYWHERE_CATEGORIES,
     FILLERS,
@@ -711,9 +715,187 @@ __all__ = [
     "TextFinding",
     "TextScanResult",
     "TextScanner",
+    "TextSource",
     "TextSums",
     "label_pairs",
+    "scan_text_sources",
     "split_cells",
     "text_csv",
     "text_result",
+    "text_sources",
 ]
+
+
+# -- where the text is ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class TextSource:
+    """One text column and the file it is read from."""
+
+    column: str
+    path: Path
+    source: str
+    """``items`` (one text per item) or ``annotations`` (one per annotation row)."""
+    item_column: str
+    label_column: str | None = None
+    """Annotation file only: the label cell beside the text."""
+    separator: str | None = None
+    encoding: str | None = None
+    fmt: str = "auto"
+
+
+def _file_columns(path: Path, kind: str, encoding: str | None, fmt: str = "auto") -> list[str]:
+    from labelreview.io import TableStream
+    from labelreview.io._common import read_table
+
+    try:
+        return list(TableStream(path, fmt=fmt, encoding=encoding, kind=kind).file_columns)
+    except UsageError:  # a single JSON document: read it whole
+        from labelreview.io import detect_format
+
+        resolved = detect_format(path, kind=kind, encoding=encoding) if fmt == "auto" else fmt
+        return list(read_table(path, fmt=resolved, encoding=encoding).columns)
+
+
+def text_sources(config: DatasetConfig, names: Sequence[str]) -> list[TextSource]:
+    """Find each text column: in the item table first, else in the annotation file.
+
+    Raises:
+        UsageError: A column is in neither (the message lists the columns of both).
+    """
+    from labelreview.io._annotations import resolve_columns
+
+    out: list[TextSource] = []
+    seen: dict[str, list[str]] = {}
+    items = config.items
+    if items is not None and items.path.is_file():
+        seen[str(items.path)] = _file_columns(items.path, "items", items.encoding)
+    ann = config.annotations
+    if ann is not None and ann.path is not None and ann.path.exists() and ann.layout == "long":
+        seen[str(ann.path)] = _file_columns(ann.path, "annotations", ann.encoding, ann.format)
+    for name in dict.fromkeys(names):
+        if items is not None and name in seen.get(str(items.path), ()):
+            columns = seen[str(items.path)]
+            given = {k: v for k, v in items.columns.items() if k == "item"}
+            chosen = resolve_columns(items.path, columns, ("item",), given, key="items.columns")
+            out.append(
+                TextSource(name, items.path, "items", chosen["item"], encoding=items.encoding)
+            )
+            continue
+        if ann is not None and ann.path is not None and name in seen.get(str(ann.path), ()):
+            columns = seen[str(ann.path)]
+            chosen = resolve_columns(ann.path, columns, ("item", "annotator", "label"), ann.columns)
+            out.append(
+                TextSource(
+                    name,
+                    ann.path,
+                    "annotations",
+                    chosen["item"],
+                    label_column=chosen["label"],
+                    separator=ann.multi_label_separator,
+                    encoding=ann.encoding,
+                    fmt=ann.format,
+                )
+            )
+            continue
+        listing = "; ".join(f"{Path(p).name}: {', '.join(c)}" for p, c in seen.items())
+        raise UsageError(
+            f"text column '{name}' is in neither the item table nor the annotation file "
+            f"({listing or 'no files found'})",
+            hint="Name a column from the list (--text-column or scan.text_columns).",
+        )
+    return out
+
+
+def text_batches(source: TextSource, batch_bytes: int) -> Iterator[tuple[pd.DataFrame, int, float]]:
+    """(frame with ``item``, ``text`` and for annotation files ``labels``; the first row's
+    number from 1; fraction read) per batch."""
+    from labelreview.io import TableStream
+    from labelreview.io._common import as_text, read_table
+
+    wanted = [source.item_column, source.column]
+    if source.label_column is not None:
+        wanted.append(source.label_column)
+    try:
+        stream = TableStream(
+            source.path,
+            fmt=source.fmt,
+            encoding=source.encoding,
+            batch_bytes=batch_bytes,
+            kind=source.source,
+        )
+        stream.wanted = list(dict.fromkeys(wanted))
+        batches: Iterator[tuple[pd.DataFrame, int, float]] = stream.raw_batches()
+    except UsageError:
+        from labelreview.io import detect_format
+
+        fmt = detect_format(source.path, kind=source.source, encoding=source.encoding)
+        table = read_table(source.path, fmt=fmt, encoding=source.encoding)
+        batches = iter([(table.frame, 0, 1.0)])
+    for raw, offset, fraction in batches:
+        frame = pd.DataFrame(
+            {
+                "item": as_text(raw[source.item_column]).str.strip(),
+                "text": raw[source.column],
+            }
+        )
+        if source.label_column is not None:
+            frame["labels"] = split_cells(raw[source.label_column].tolist(), source.separator)
+        yield frame, offset + 1, fraction
+
+
+def scan_text_sources(
+    sources: Sequence[TextSource],
+    scanner: TextScanner,
+    *,
+    batch_bytes: int = 32 << 20,
+    progress: ProgressCallback | None = None,
+) -> TextSums:
+    """Scan every text column, batch by batch, into one :class:`TextSums`."""
+    report = tell(progress)
+    total = TextSums()
+    for source in sources:
+        task = f"scanning {source.column} in {source.path.name}"
+        size = source.path.stat().st_size if source.path.is_file() else None
+        for frame, first_row, fraction in text_batches(source, batch_bytes):
+            labels = frame["labels"].tolist() if "labels" in frame else None
+            total.merge(
+                scanner.scan_batch(
+                    source.column,
+                    frame["text"],
+                    frame["item"],
+                    first_row,
+                    source=source.source,
+                    labels=labels,
+                )
+            )
+            if size:
+                report(ProgressEvent(task, fraction * size, size))
+        report(ProgressEvent(task, size or 1, size or 1, finished=True))
+    return total
+
+
+def combined_csv(label_rows: Sequence[Mapping[str, Any]], text: TextScanResult) -> str:
+    """Label findings and text rows in one CSV, told apart by the first column ``kind``.
+
+    ``kind`` is ``label`` for a label finding (the columns of the label CSV) or ``text`` for a
+    row of free text with at least one hit (``column``, ``row``, ``item``, ``hits``, ``terms``,
+    ``categories``, ``text``; ``severity`` is the row's highest). Cells that do not apply are
+    empty. Spreadsheet formula starts are neutralised as in the label CSV.
+    """
+    from labelreview.report import CSV_COLUMNS, neutralise_cell
+
+    fields = ["kind", *CSV_COLUMNS]
+    fields += [c for c in TEXT_ROW_COLUMNS if c not in fields]
+    buf = io.StringIO()
+    writer = csv.DictWriter(buf, fieldnames=fields, extrasaction="ignore", lineterminator="\n")
+    writer.writeheader()
+    for row in label_rows:
+        out = dict(row)
+        out["suggestions"] = "; ".join(out.get("suggestions", ()))
+        out["kind"] = "label"
+        writer.writerow({k: neutralise_cell(v) for k, v in out.items()})
+    for row in text_rows_table(text):
+        writer.writerow({k: neutralise_cell(v) for k, v in {"kind": "text", **row}.items()})
+    return buf.getvalue()
