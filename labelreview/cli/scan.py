@@ -160,6 +160,10 @@ def run_scan_all(
         subjects=subjects,
     )
     names = text_columns or config.scan.text_columns
+    if names:
+        from labelreview.textscan import text_sources
+
+        text_sources(config, names)  # a column that is nowhere fails now, before any reading
     chosen = engine or config.engine.name
     text_sums = None
     if chosen == "dask":
