@@ -123,7 +123,7 @@ class EngineConfig:
     """Dask: address of an existing scheduler (``tcp://host:8786``); None starts a local one."""
     stream_above_mb: float = 512.0
     """Local: read annotation files larger than this many megabytes in batches."""
-    batch_mb: float = 32.0
+    batch_mb: float = 16.0
     """Local, in batches: megabytes of text read per batch."""
     temp_dir: Path | None = None
     """Where a file not sorted by item is partitioned (None: the system's temporary folder)."""

@@ -46,7 +46,7 @@ from labelreview.agreement._report import (
     per_label_alpha,
     report_from_sums,
 )
-from labelreview.agreement._streaming import stream_agreement
+from labelreview.agreement._streaming import stream_agreement, stream_per_label_alpha
 
 __all__ = [
     "LANDIS_KOCH",
@@ -72,4 +72,5 @@ __all__ = [
     "percent_agreement",
     "report_from_sums",
     "stream_agreement",
+    "stream_per_label_alpha",
 ]

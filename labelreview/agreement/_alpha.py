@@ -23,8 +23,8 @@ from labelreview.agreement._coding import (
     run_lengths,
 )
 
-_PAIR_BUDGET = 4_000_000
-"""Largest number of value-group pairs generated at once (bounds memory)."""
+_PAIR_BUDGET = 1_000_000
+"""Largest number of value-group pairs generated at once (bounds memory: about 80 MB)."""
 _BLOCK_BUDGET = 2_000_000
 """Largest block of the values x values difference table held at once."""
 

@@ -18,6 +18,8 @@ from labelreview.agreement._coding import Coded
 
 WEIGHTS: tuple[str | None, ...] = (None, "linear", "quadratic")
 _DENSE_BUDGET = 20_000_000
+_PAIR_BUDGET = 1_000_000
+"""Annotation pairs generated at once for Cohen's kappa (bounds memory: about 100 MB)."""
 
 
 def kappa_from_confusion(confusion: np.ndarray, weights: str | None = None) -> np.ndarray:
@@ -83,7 +85,7 @@ def cohen_counts(coded: Coded) -> CohenCounts:
     sizes = np.diff(starts)
     parts: list[tuple[tuple[np.ndarray, ...], np.ndarray]] = []
     radices = (n_ann, n_ann, v, v)
-    for lo, hi in _chunks(sizes.astype(np.float64) ** 2, _DENSE_BUDGET // 4):
+    for lo, hi in _chunks(sizes.astype(np.float64) ** 2, _PAIR_BUDGET):
         units = np.arange(lo, hi)
         reps = sizes[units]
         rows = np.arange(starts[lo], starts[hi])

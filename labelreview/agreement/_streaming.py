@@ -21,8 +21,10 @@ from labelreview.agreement._coding import check_level, code_annotations
 from labelreview.agreement._report import (
     AgreementResult,
     AgreementThresholds,
+    LabelAgreement,
     check_report_options,
     ordinal_metric,
+    per_label_from_sums,
     report_from_sums,
     report_parts,
 )
@@ -137,3 +139,26 @@ def stream_agreement(
         top_splits=top_splits,
     )
     return result, report
+
+
+def stream_per_label_alpha(
+    stream: AnnotationStream,
+    *,
+    min_items: int = 10,
+    thresholds: AgreementThresholds | None = None,
+    progress: ProgressCallback | None = None,
+    temp_dir: Path | None = None,
+) -> tuple[tuple[float | None, list[LabelAgreement]], LoadReport]:
+    """:func:`~labelreview.agreement.per_label_alpha` for a file read in batches (the overall
+    alpha and every label's one-vs-rest alpha only, the quickest figures)."""
+    parts = frozenset({"labels", "overall"})
+
+    def step(state: AgreementSums | None, batch: pd.DataFrame) -> AgreementSums | None:
+        if batch.empty:
+            return state
+        return merge_sums(state, sums_of_batch(batch, "nominal", parts))
+
+    sums, report = fold_items(stream, lambda: None, step, progress=progress, temp_dir=temp_dir)
+    if sums is None:
+        raise UsageError(f"no annotations found in {stream.path}")
+    return per_label_from_sums(sums, min_items=min_items, thresholds=thresholds), report

@@ -62,9 +62,9 @@ from labelreview.progress import ProgressCallback, ProgressEvent, tell
 STREAM_FORMATS: tuple[str, ...] = ("csv", "tsv", "jsonl", "parquet")
 """Formats that can be read in batches (COCO and JSON lists are single documents)."""
 
-BATCH_BYTES = 32 << 20
+BATCH_BYTES = 16 << 20
 """Text read per batch (CSV, TSV, JSON Lines)."""
-BATCH_ROWS = 1 << 20
+BATCH_ROWS = 1 << 19
 """Rows read per batch (Parquet)."""
 PARTITION_BYTES = 128 << 20
 """Input bytes per temporary partition when a file is not sorted by item."""
@@ -220,45 +220,51 @@ class TableStream:
             yield from self._csv_batches()
 
     def _csv_batches(self) -> Iterator[tuple[pd.DataFrame, int, float]]:
+        """CSV or TSV in blocks cut at record ends, each parsed by pyarrow on its own.
+
+        pyarrow's own streaming reader keeps memory proportional to the file in the versions
+        checked (26.0), so the file is read here in ``batch_bytes`` blocks instead. A block
+        ends at the last line break outside quotes: with RFC 4180 quoting a line break ends a
+        record exactly when an even number of quote characters precede it in the record.
+        """
         import pyarrow as pa
         import pyarrow.csv as pacsv
 
-        needed = self._needed()
-        raw = pa.OSFile(str(self.path), "rb")
-        try:
-            reader = pacsv.open_csv(
-                raw,
-                read_options=pacsv.ReadOptions(
-                    column_names=self.file_columns,
-                    skip_rows=1,
-                    block_size=self.batch_bytes,
-                    encoding="utf8" if is_utf8(self.encoding) else str(self.encoding),
-                ),
-                parse_options=pacsv.ParseOptions(
-                    delimiter=self._delimiter, newlines_in_values=True
-                ),
-                convert_options=pacsv.ConvertOptions(
-                    column_types={name: pa.string() for name in self.file_columns},
-                    include_columns=needed,
-                    strings_can_be_null=False,
-                    quoted_strings_can_be_null=False,
-                ),
+        encoding = None if is_utf8(self.encoding) else str(self.encoding)
+        if encoding is not None and codecs.lookup(encoding).name.startswith(("utf-16", "utf-32")):
+            raise UsageError(
+                f"{self.path}: {encoding} text cannot be read in batches",
+                hint="Convert the file to UTF-8, or read it whole (without --stream).",
             )
-            offset = 0
-            while True:
-                try:
-                    batch = reader.read_next_batch()
-                except StopIteration:
-                    break
-                except pa.ArrowInvalid as exc:
-                    raise self._csv_fault(str(exc)) from None
-                frame = batch.to_pandas()
-                yield frame, offset, min(raw.tell() / max(self.total_bytes, 1), 1.0)
-                offset += len(frame)
-        except pa.ArrowInvalid as exc:
-            raise self._csv_fault(str(exc)) from None
-        finally:
-            raw.close()
+        needed = self._needed()
+        read_options = pacsv.ReadOptions(column_names=self.file_columns, use_threads=True)
+        parse_options = pacsv.ParseOptions(delimiter=self._delimiter, newlines_in_values=True)
+        convert_options = pacsv.ConvertOptions(
+            column_types={name: pa.string() for name in self.file_columns},
+            include_columns=needed,
+            strings_can_be_null=False,
+            quoted_strings_can_be_null=False,
+        )
+        offset = 0
+        done = 0
+        for block in _record_blocks(self.path, self.batch_bytes):
+            done += len(block)
+            data = block if encoding is None else block.decode(encoding).encode("utf-8")
+            try:
+                table = pacsv.read_csv(
+                    pa.BufferReader(data),
+                    read_options=read_options,
+                    parse_options=parse_options,
+                    convert_options=convert_options,
+                )
+            except (pa.ArrowInvalid, UnicodeDecodeError) as exc:
+                raise self._csv_fault(str(exc)) from None
+            del data
+            frame = table.to_pandas()
+            del table
+            if len(frame):
+                yield frame, offset, min(done / max(self.total_bytes, 1), 1.0)
+            offset += len(frame)
 
     def _parquet_batches(self) -> Iterator[tuple[pd.DataFrame, int, float]]:
         import pyarrow as pa
@@ -575,6 +581,46 @@ def _first_undecodable(path: Path, encoding: str) -> tuple[int, int, int] | None
             line_tail = block[cut + 1 :] if cut >= 0 else (line_tail + block)[-(1 << 20) :]
 
 
+def _record_blocks(path: Path, size: int) -> Iterator[bytes]:
+    """The file's data rows (header and a UTF-8 byte order mark skipped) in blocks of about
+    ``size`` bytes, each ending at a record end (a line break outside quotes).
+
+    Every block starts at a record start, so a line break ends a record exactly when the
+    quote characters before it in the block are even in number (a doubled quote counts two).
+    """
+    quote, newline = ord('"'), ord("\n")
+    with open(path, "rb") as handle:
+        if handle.read(3) != codecs.BOM_UTF8:
+            handle.seek(0)
+        carry = b""
+        header_done = False
+        while True:
+            chunk = handle.read(size)
+            if not chunk:
+                break
+            data = carry + chunk
+            view = np.frombuffer(data, dtype=np.uint8)
+            marks = np.flatnonzero((view == quote) | (view == newline))
+            is_quote = view[marks] == quote
+            before = np.cumsum(is_quote) - is_quote
+            ends = marks[~is_quote & (before % 2 == 0)]
+            if not header_done:
+                if ends.size == 0:
+                    carry = data
+                    continue
+                data = data[int(ends[0]) + 1 :]
+                ends = ends[1:] - (int(ends[0]) + 1)
+                header_done = True
+            if ends.size == 0:
+                carry = data
+                continue
+            cut = int(ends[-1]) + 1
+            yield data[:cut]
+            carry = data[cut:]
+        if header_done and carry.strip():
+            yield carry if carry.endswith(b"\n") else carry + b"\n"
+
+
 # -- whole items ---------------------------------------------------------------------------------
 
 
@@ -601,7 +647,9 @@ class ItemOrder:
 
         if items.empty:
             return self.text_ok or self.number_ok
-        values = pa.array(items.to_numpy(dtype=object), type=pa.string())
+        values = pa.array(items, type=pa.string(), from_pandas=True)
+        if isinstance(values, pa.ChunkedArray):
+            values = values.combine_chunks()
         if self.last is not None:
             values = pa.concat_arrays([pa.array([self.last], type=pa.string()), values])
         head, tail = values.slice(0, len(values) - 1), values.slice(1)
@@ -617,8 +665,21 @@ class ItemOrder:
                 back = pc.any(pc.less(n_tail, n_head)).as_py()
                 clash = pc.any(pc.and_(pc.equal(n_tail, n_head), pc.not_equal(tail, head))).as_py()
                 self.number_ok = not (back or clash)
-        self.last = str(items.iloc[-1])
+        self.last = str(values[len(values) - 1].as_py())
         return self.text_ok or self.number_ok
+
+
+def _last_item_start(items: pd.Series) -> int:
+    """Where the rows of the batch's last item start (its rows are adjacent)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    values = pa.array(items, type=pa.string(), from_pandas=True)
+    if isinstance(values, pa.ChunkedArray):
+        values = values.combine_chunks()
+    last = values[len(values) - 1]
+    differs = np.flatnonzero(pc.not_equal(values, last).to_numpy(zero_copy_only=False))
+    return int(differs[-1]) + 1 if differs.size else 0
 
 
 def _sorted_pass(
@@ -634,10 +695,7 @@ def _sorted_pass(
             batch = pd.concat([pending, batch], ignore_index=True)
         if batch.empty:
             continue
-        items = batch["item"].to_numpy(dtype=object)
-        last = items[-1]
-        differs = np.flatnonzero(items != last)
-        cut = int(differs[-1]) + 1 if differs.size else 0
+        cut = _last_item_start(batch["item"])
         pending = batch.iloc[cut:]
         if cut:
             yield batch.iloc[:cut].reset_index(drop=True)

@@ -253,3 +253,21 @@ def test_default_temporary_folder_is_left_clean(tmp_path: Path, monkeypatch):
         assert list((tmp_path / "tmp").iterdir()) == []
     finally:
         tempfile.tempdir = None
+
+
+def test_quoted_line_breaks_and_quotes_survive_block_cuts(tmp_path: Path):
+    # RFC 4180, section 2: quoted fields may hold line breaks and doubled quotes.
+    rows = []
+    for i in range(400):
+        label = f'"tag\n""{i % 7}"""' if i % 3 == 0 else f"tag{i % 5}"
+        rows.append(f"p{i // 3},v{i % 3},{label}")
+    path = tmp_path / "quoted.csv"
+    path.write_text("item,annotator,label\r\n" + "\r\n".join(rows) + "\r\n", encoding="utf-8")
+    frame, _ = load_annotations(path)
+    for size in (64, 333, 4096):
+        stream = AnnotationStream(path, batch_bytes=size)
+        got, _ = fold_items(stream, list, lambda acc, b: acc + [b])
+        joined = pd.concat(got, ignore_index=True)
+        assert sorted(map(tuple, joined.to_numpy().tolist())) == sorted(
+            map(tuple, frame.to_numpy().tolist())
+        )
