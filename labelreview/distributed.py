@@ -321,17 +321,18 @@ def dask_agreement(
     report = _load_report(path, chosen, found, dups, len(pieces), ann.layout)
     if dups:
         warn_duplicates(path, dups)
-    result = report_from_sums(
-        sums,
-        bootstrap=bootstrap,
-        seed=seed,
-        thresholds=thresholds,
-        min_items=min_items,
-        min_pair_items=min_pair_items,
-        confidence=confidence,
-        leave_out=leave_out,
-        top_splits=top_splits,
-    )
+    with phase(progress, "computing the figures"):
+        result = report_from_sums(
+            sums,
+            bootstrap=bootstrap,
+            seed=seed,
+            thresholds=thresholds,
+            min_items=min_items,
+            min_pair_items=min_pair_items,
+            confidence=confidence,
+            leave_out=leave_out,
+            top_splits=top_splits,
+        )
     return result, report
 
 

@@ -32,7 +32,7 @@ from labelreview.agreement._sums import BUCKETS, AgreementSums, ExactSums
 from labelreview.errors import UsageError
 from labelreview.io._stream import AnnotationStream, fold_items
 from labelreview.model import LoadReport
-from labelreview.progress import ProgressCallback
+from labelreview.progress import ProgressCallback, phase
 
 
 def sums_of_batch(
@@ -127,17 +127,18 @@ def stream_agreement(
         report = replace(
             report, notes=(*report.notes, "read a second time for the ordinal bootstrap")
         )
-    result = report_from_sums(
-        sums,
-        bootstrap=bootstrap,
-        seed=seed,
-        thresholds=thresholds,
-        min_items=min_items,
-        min_pair_items=min_pair_items,
-        confidence=confidence,
-        leave_out=leave_out,
-        top_splits=top_splits,
-    )
+    with phase(progress, "computing the figures"):
+        result = report_from_sums(
+            sums,
+            bootstrap=bootstrap,
+            seed=seed,
+            thresholds=thresholds,
+            min_items=min_items,
+            min_pair_items=min_pair_items,
+            confidence=confidence,
+            leave_out=leave_out,
+            top_splits=top_splits,
+        )
     return result, report
 
 
