@@ -116,7 +116,9 @@ def probe(kind: str, path: Path, bootstrap: int) -> None:
 
 def run_probe(kind: str, path: Path, bootstrap: int) -> dict[str, object]:
     command = [sys.executable, __file__, "--probe", kind, str(path), "--bootstrap", str(bootstrap)]
-    done = subprocess.run(command, capture_output=True, text=True, check=True)
+    done = subprocess.run(command, capture_output=True, text=True)
+    if done.returncode != 0:  # e.g. the whole-file path killed for lack of memory
+        return {"failed": f"exit {done.returncode}"}
     return json.loads(done.stdout.strip().splitlines()[-1])
 
 
@@ -156,9 +158,14 @@ def main() -> None:
         equal = "-"
         if size <= args.whole_max_mb:
             whole = run_probe("whole", path, args.bootstrap)
-            whole_s = f"{whole['seconds']:.1f}"
-            whole_mb = f"{whole['peak_mb']:.0f}"
-            equal = str(whole["alpha"] == stream["alpha"] and whole["labels"] == stream["labels"])
+            if "failed" in whole:
+                whole_s, whole_mb = "killed", str(whole["failed"])
+            else:
+                whole_s = f"{whole['seconds']:.1f}"
+                whole_mb = f"{whole['peak_mb']:.0f}"
+                equal = str(
+                    whole["alpha"] == stream["alpha"] and whole["labels"] == stream["labels"]
+                )
         ratio = float(stream["seconds"]) / float(read["seconds"])
         print(
             f"{info['bytes'] / 1e9:7.2f}GB {info['rows']:>12,} {read['seconds']:8.1f} "

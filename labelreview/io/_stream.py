@@ -66,7 +66,7 @@ BATCH_BYTES = 16 << 20
 """Text read per batch (CSV, TSV, JSON Lines)."""
 BATCH_ROWS = 1 << 19
 """Rows read per batch (Parquet)."""
-PARTITION_BYTES = 128 << 20
+PARTITION_BYTES = 48 << 20
 """Input bytes per temporary partition when a file is not sorted by item."""
 
 T = TypeVar("T")
