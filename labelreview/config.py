@@ -105,6 +105,28 @@ class ScanConfig:
     """rapidfuzz ratio (0-100) a token needs to count as a misspelling of a term."""
     fuzzy_min_length: int = 5
     """Tokens shorter than this are never fuzzy-matched."""
+    text_columns: tuple[str, ...] = ()
+    """Free-text columns (captions, descriptions, comments) to scan as well as the labels: in
+    the item table, or else in the annotation file. Empty: labels only."""
+
+
+ENGINES: tuple[str, ...] = ("local", "dask")
+
+
+@dataclass(frozen=True)
+class EngineConfig:
+    """The ``engine:`` section: where and how large data is read."""
+
+    name: str = "local"
+    """``local`` (this machine; large files are read in batches) or ``dask``."""
+    scheduler: str | None = None
+    """Dask: address of an existing scheduler (``tcp://host:8786``); None starts a local one."""
+    stream_above_mb: float = 512.0
+    """Local: read annotation files larger than this many megabytes in batches."""
+    batch_mb: float = 16.0
+    """Local, in batches: megabytes of text read per batch."""
+    temp_dir: Path | None = None
+    """Where a file not sorted by item is partitioned (None: the system's temporary folder)."""
 
 
 AGREEMENT_LEVELS: tuple[str, ...] = ("nominal", "ordinal", "interval", "ratio")
@@ -245,6 +267,7 @@ class DatasetConfig:
     compare: CompareConfig = field(default_factory=CompareConfig)
     signals: SignalsConfig = field(default_factory=SignalsConfig)
     queue: QueueConfig = field(default_factory=QueueConfig)
+    engine: EngineConfig = field(default_factory=EngineConfig)
     curator: str | None = None
     notes: tuple[str, ...] = ()
     """What detection found or could not decide, in plain sentences."""
@@ -278,6 +301,7 @@ _TOP_KEYS = (
     "compare",
     "signals",
     "queue",
+    "engine",
     "curator",
 )
 _ANNOTATION_KEYS = (
@@ -293,7 +317,8 @@ _TAXONOMY_KEYS = ("path", "format", "encoding")
 _ITEM_KEYS = ("path", "columns", "attributes", "encoding")
 _ATTRIBUTE_KEYS = ("column", "consented", "self_reported")
 _LEXICON_KEYS = ("base", "layers")
-_SCAN_KEYS = ("fuzzy_threshold", "fuzzy_min_length")
+_SCAN_KEYS = ("fuzzy_threshold", "fuzzy_min_length", "text_columns")
+_ENGINE_KEYS = ("name", "scheduler", "stream_above_mb", "batch_mb", "temp_dir")
 _AGREEMENT_KEYS = (
     "level",
     "reliable",
@@ -543,7 +568,13 @@ def _parse(path: Path, root: Path, text: str) -> DatasetConfig:
                     section["fuzzy_min_length"], "scan.fuzzy_min_length", 1, None, integer=True
                 )
             )
-        scan = ScanConfig(fuzzy_threshold=threshold, fuzzy_min_length=min_length)
+        text_columns: tuple[str, ...] = ()
+        if "text_columns" in section:
+            text_columns = reader.text_list(section["text_columns"], "scan.text_columns")
+        scan = ScanConfig(
+            fuzzy_threshold=threshold, fuzzy_min_length=min_length, text_columns=text_columns
+        )
+    engine = _engine(reader, top["engine"]) if "engine" in top else EngineConfig()
 
     agreement = _agreement(reader, top["agreement"]) if "agreement" in top else AgreementConfig()
     decisions = _decisions(reader, top["decisions"]) if "decisions" in top else DecisionsConfig()
@@ -576,6 +607,7 @@ def _parse(path: Path, root: Path, text: str) -> DatasetConfig:
         compare=compare,
         signals=signals,
         queue=queue,
+        engine=engine,
         curator=curator,
         lines=dict(reader.lines),
     )
@@ -678,6 +710,23 @@ def _queue(reader: _Reader, node: yaml.Node) -> QueueConfig:
         for key, child in entries.items():
             severity[key] = reader.choice(child, f"queue.severity.{key}", SEVERITIES)  # type: ignore[assignment]
     return QueueConfig(weights=weights, severity=severity)
+
+
+def _engine(reader: _Reader, node: yaml.Node) -> EngineConfig:
+    if reader.is_null(node):
+        return EngineConfig()
+    section = reader.mapping(node, "engine", _ENGINE_KEYS)
+    values: dict[str, Any] = {}
+    if "name" in section:
+        values["name"] = reader.choice(section["name"], "engine.name", ENGINES)
+    if "scheduler" in section:
+        values["scheduler"] = reader.text(section["scheduler"], "engine.scheduler", nullable=True)
+    for key, low in (("stream_above_mb", 0.0), ("batch_mb", 1.0)):
+        if key in section:
+            values[key] = reader.number(section[key], f"engine.{key}", low, None, integer=False)
+    if "temp_dir" in section and not reader.is_null(section["temp_dir"]):
+        values["temp_dir"] = reader.file(section["temp_dir"], "engine.temp_dir")
+    return replace(EngineConfig(), **values)
 
 
 def _decisions(reader: _Reader, node: yaml.Node) -> DecisionsConfig:

@@ -139,6 +139,46 @@ def _must_exist(config: DatasetConfig, path: Path, key: str) -> None:
     raise LoadError("the file does not exist", source=str(path))
 
 
+def configure(
+    dataset_dir: Path,
+    *,
+    annotations: Path | None = None,
+    taxonomy: Path | None = None,
+    encoding: str | None = None,
+    subjects: str | None = None,
+) -> DatasetConfig:
+    """The dataset folder's config with the caller's overrides applied, no data read yet.
+
+    :func:`load_dataset` reads the files it names; the streaming and Dask engines read the
+    annotations their own way from the same config.
+
+    Raises:
+        ConfigError: Bad config.
+        UsageError: ``subjects`` or ``encoding`` is not a known value.
+    """
+    root = Path(dataset_dir)
+    if subjects is not None and subjects not in SUBJECTS:
+        raise UsageError(f"subjects must be one of {', '.join(SUBJECTS)}; got {subjects!r}")
+    check_encoding(encoding)
+    config = load_config(root)
+    if subjects is not None:
+        config = replace(config, subjects=subjects)  # type: ignore[arg-type]
+    if annotations is not None:
+        base = config.annotations or AnnotationsConfig(path=None)
+        config = replace(config, annotations=replace(base, path=Path(annotations), format="auto"))
+    if taxonomy is not None:
+        config = replace(config, taxonomy=TaxonomyConfig(path=Path(taxonomy)))
+    if encoding is not None:
+        if config.annotations is not None:
+            config = replace(config, annotations=replace(config.annotations, encoding=encoding))
+        if config.taxonomy is not None:
+            config = replace(config, taxonomy=replace(config.taxonomy, encoding=encoding))
+        if config.items is not None:
+            config = replace(config, items=replace(config.items, encoding=encoding))
+
+    return config
+
+
 def load_dataset(
     dataset_dir: Path,
     *,
@@ -166,25 +206,14 @@ def load_dataset(
         LoadError: A file cannot be read, or the folder has neither annotations nor taxonomy.
         UsageError: ``subjects`` or ``encoding`` is not a known value.
     """
-    root = Path(dataset_dir)
-    if subjects is not None and subjects not in SUBJECTS:
-        raise UsageError(f"subjects must be one of {', '.join(SUBJECTS)}; got {subjects!r}")
-    check_encoding(encoding)
-    config = load_config(root)
-    if subjects is not None:
-        config = replace(config, subjects=subjects)  # type: ignore[arg-type]
-    if annotations is not None:
-        base = config.annotations or AnnotationsConfig(path=None)
-        config = replace(config, annotations=replace(base, path=Path(annotations), format="auto"))
-    if taxonomy is not None:
-        config = replace(config, taxonomy=TaxonomyConfig(path=Path(taxonomy)))
-    if encoding is not None:
-        if config.annotations is not None:
-            config = replace(config, annotations=replace(config.annotations, encoding=encoding))
-        if config.taxonomy is not None:
-            config = replace(config, taxonomy=replace(config.taxonomy, encoding=encoding))
-        if config.items is not None:
-            config = replace(config, items=replace(config.items, encoding=encoding))
+    config = configure(
+        dataset_dir,
+        annotations=annotations,
+        taxonomy=taxonomy,
+        encoding=encoding,
+        subjects=subjects,
+    )
+    root = config.root
 
     reports: list[LoadReport] = []
     frame: pd.DataFrame | None = None

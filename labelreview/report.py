@@ -176,6 +176,7 @@ def scan_dataset(
     *,
     subjects: str | None = None,
     extra_layers: Sequence[Path] = (),
+    usage: Mapping[str, LabelUse] | None = None,
 ) -> DatasetScan:
     """Load the dataset's lexicon layers and scan every label it uses or lists.
 
@@ -184,6 +185,8 @@ def scan_dataset(
         subjects: Overrides the config's ``subjects``; when both are unset, ``mixed`` is used
             and a note says so.
         extra_layers: Lexicon layer files applied after the config's layers.
+        usage: Label counts already made (by the streaming or Dask engine, which leave
+            ``dataset.annotations`` unread); default: counted from ``dataset.annotations``.
 
     Raises:
         UsageError: The dataset has no labels at all.
@@ -200,7 +203,8 @@ def scan_dataset(
         )
     lexicon = load_lexicon([*config.lexicons.layers, *extra_layers], base=config.lexicons.base)
     notes.extend(f"warning: {problem}" for problem in lexicon.warnings)
-    usage = label_usage(dataset.annotations, [t.name for t in dataset.taxonomy])
+    if usage is None:
+        usage = label_usage(dataset.annotations, [t.name for t in dataset.taxonomy])
     if not usage:
         raise UsageError(
             f"no labels found in {dataset.root}",

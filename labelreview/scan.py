@@ -250,6 +250,15 @@ class Scanner:
         self._live: dict[str, bool] = {}
         self._vocabulary = english_words()
 
+    def __setstate__(self, state: dict[str, object]) -> None:
+        """Unpickling (the Dask engine ships scanners to its workers): exceptions are keyed by
+        the identity of their term, which a copy does not keep, so key them again."""
+        self.__dict__.update(state)
+        self._exceptions = {
+            id(term): tuple(tuple(tok) for tok in (term_tokens(e) for e in term.exceptions) if tok)
+            for term in self.lexicon.terms
+        }
+
     # -- building ---------------------------------------------------------------------------
 
     @staticmethod
@@ -437,8 +446,8 @@ class Scanner:
         self._segment_cache[segment] = result
         return result
 
-    def _speaks_of_person(self, hit: _Hit, tokens: tuple[Token, ...], hits: list[_Hit]) -> bool:
-        texts = [t.text for t in tokens]
+    def _excepted(self, hit: _Hit, texts: list[str]) -> bool:
+        """Does a benign fixed phrase listed with the term cover this match?"""
         for phrase in self._exceptions.get(id(hit.term), ()):
             size = len(phrase)
             for start in range(0, len(texts) - size + 1):
@@ -447,7 +456,13 @@ class Scanner:
                     and start < hit.end
                     and (start + size > hit.start)
                 ):
-                    return False
+                    return True
+        return False
+
+    def _speaks_of_person(self, hit: _Hit, tokens: tuple[Token, ...], hits: list[_Hit]) -> bool:
+        texts = [t.text for t in tokens]
+        if self._excepted(hit, texts):
+            return False
         if hit.term.category in ANYWHERE_CATEGORIES:
             return True
         covered = {k for h in hits for k in range(h.start, h.end)}
@@ -482,17 +497,35 @@ class Scanner:
 
     def _prefetch(self, labels: list[str]) -> None:
         """Resolve every unknown word of these labels in one fuzzy batch."""
-        seen = self._unknown_cache
         words: set[str] = set()
         for label in labels:
             for segment in split_segments(label):
                 if segment in self._segment_cache:
                     continue
-                for token in tokenize(segment):
-                    word = token.text
-                    if word not in seen and word not in self._starts and word not in _NEVER_FUZZY:
-                        words.add(word)
-        self._resolve_many(sorted(words))
+                words.update(token.text for token in tokenize(segment))
+        self.resolve_words(words)
+
+    def resolve_words(self, words: Iterable[str]) -> None:
+        """Fuzzy-match every word not seen before in one batch (one rapidfuzz call)."""
+        seen = self._unknown_cache
+        fresh = {w for w in words if w not in seen and w not in self._starts}
+        self._resolve_many(sorted(fresh - _NEVER_FUZZY))
+
+    def live_words(self, words: Iterable[str]) -> set[str]:
+        """The words that could take part in a match: a term's first word, the first part of
+        a compound written as two words, or a misspelt or obfuscated form of a term.
+
+        Call :meth:`resolve_words` first so the fuzzy stage runs once for all of them.
+        """
+        live = self._live
+        out: set[str] = set()
+        for word in words:
+            flag = live.get(word)
+            if flag is None:
+                flag = live[word] = self._can_match(word)
+            if flag:
+                out.add(word)
+        return out
 
     def scan_label(self, label: str) -> list[Finding]:
         """All findings for one label (empty when nothing matched)."""

@@ -44,7 +44,9 @@ from labelreview.agreement._report import (
     interpret_alpha,
     interpret_kappa,
     per_label_alpha,
+    report_from_sums,
 )
+from labelreview.agreement._streaming import stream_agreement, stream_per_label_alpha
 
 __all__ = [
     "LANDIS_KOCH",
@@ -68,4 +70,7 @@ __all__ = [
     "pairable_counts",
     "per_label_alpha",
     "percent_agreement",
+    "report_from_sums",
+    "stream_agreement",
+    "stream_per_label_alpha",
 ]

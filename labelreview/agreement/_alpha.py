@@ -9,7 +9,7 @@ items x labels matrix is built and no Python loop runs over items.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 
 import numpy as np
@@ -23,8 +23,8 @@ from labelreview.agreement._coding import (
     run_lengths,
 )
 
-_PAIR_BUDGET = 4_000_000
-"""Largest number of value-group pairs generated at once (bounds memory)."""
+_PAIR_BUDGET = 1_000_000
+"""Largest number of value-group pairs generated at once (bounds memory: about 80 MB)."""
 _BLOCK_BUDGET = 2_000_000
 """Largest block of the values x values difference table held at once."""
 
@@ -164,19 +164,30 @@ def masi_from_counts(inter: np.ndarray, size_a: np.ndarray, size_b: np.ndarray) 
 
 def metric_factory(coded: Coded, level: str) -> Callable[[np.ndarray], Metric]:
     """A function from pairable-value marginals to the level's difference function."""
-    if coded.multi:
-        assert coded.members is not None
-        masi = MasiMetric(coded.members)
+    return level_metric_factory(level, coded.multi, coded.numbers, coded.members)
+
+
+def level_metric_factory(
+    level: str,
+    multi: bool,
+    numbers: np.ndarray | None,
+    members: sp.csr_matrix | None,
+) -> Callable[[np.ndarray], Metric]:
+    """:func:`metric_factory` from its parts: the level, whether values are label sets, the
+    values' numbers (numeric levels) and the set x label membership (multi-label)."""
+    if multi:
+        assert members is not None
+        masi = MasiMetric(members)
         return lambda _marg: masi
     if level == "nominal":
         nominal = NominalMetric()
         return lambda _marg: nominal
-    assert coded.numbers is not None
+    assert numbers is not None
     if level == "interval":
-        interval = IntervalMetric(coded.numbers)
+        interval = IntervalMetric(numbers)
         return lambda _marg: interval
     if level == "ratio":
-        ratio = RatioMetric(coded.numbers)
+        ratio = RatioMetric(numbers)
         return lambda _marg: ratio
     return OrdinalMetric
 
@@ -237,57 +248,205 @@ def _chunks(weights: np.ndarray, budget: int) -> list[tuple[int, int]]:
     return [(int(a), int(b)) for a, b in zip(bounds[:-1], bounds[1:], strict=True) if b > a]
 
 
+@dataclass
+class PairablePairs:
+    """The value groups of items with two or more values, and how to walk their pairs."""
+
+    unit: np.ndarray
+    value: np.ndarray
+    count: np.ndarray
+    """Annotators who gave this value to this item (int64)."""
+    m: np.ndarray
+    """Per group: the values of its item (int64)."""
+    unit_first: np.ndarray
+    per_unit: np.ndarray
+    owner: np.ndarray
+
+    def pairs(self) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+        """Every ordered pair (left, right) of groups within one item, in bounded chunks.
+
+        Pairs come item by item, and within an item left-major: the same order whatever other
+        items are present, so per-item sums over them come out the same to the last bit.
+        """
+        n = self.unit.size
+        for lo, hi in _chunks(self.per_unit.astype(np.float64) ** 2, _PAIR_BUDGET):
+            g_lo = self.unit_first[lo]
+            g_hi = self.unit_first[hi] if hi < self.unit_first.size else n
+            g = np.arange(g_lo, g_hi)
+            reps = self.per_unit[self.owner[g]]
+            left = np.repeat(g, reps)
+            offsets = np.arange(left.size) - np.repeat(np.cumsum(reps) - reps, reps)
+            right = self.unit_first[self.owner[left]] + offsets
+            yield left, right
+
+
+def pairable_pairs(groups: Groups) -> PairablePairs:
+    """Keep the value groups of pairable items (m_u >= 2) and index their items."""
+    m = groups.m
+    keep = m[groups.unit] >= 2
+    g_unit = groups.unit[keep]
+    first = np.concatenate(([True], g_unit[1:] != g_unit[:-1])) if g_unit.size else keep[:0]
+    unit_first = np.flatnonzero(first)
+    per_unit = np.diff(np.append(unit_first, g_unit.size))
+    owner = np.repeat(np.arange(unit_first.size), per_unit)
+    return PairablePairs(
+        unit=g_unit,
+        value=groups.value[keep],
+        count=groups.count[keep].astype(np.int64),
+        m=m[g_unit].astype(np.int64),
+        unit_first=unit_first,
+        per_unit=per_unit,
+        owner=owner,
+    )
+
+
+@dataclass
+class Numerators:
+    """Coincidences as exact integers: o_ck = sum over item sizes m of num[c, k, m] / (m - 1).
+
+    Rows are (c, k, m, num), one per cell and item size, sorted by (c, k, m). Integers add up
+    exactly in any order, so coincidences summed over parts of the data (batches, partitions)
+    are the same numbers as over the whole; the division happens once, in :func:`to_matrix`.
+    """
+
+    c: np.ndarray
+    k: np.ndarray
+    m: np.ndarray
+    num: np.ndarray
+
+
+def sum_by_key(
+    columns: tuple[np.ndarray, ...], radices: tuple[int, ...], values: np.ndarray
+) -> tuple[tuple[np.ndarray, ...], np.ndarray]:
+    """Integer ``values`` summed per distinct row of ``columns``; zero sums dropped.
+
+    Rows come out sorted by the columns in order. ``radices`` bound each column (exclusive).
+    A dense ``bincount`` when the key space is small (integer sums below 2**53 are exact in
+    float64), else one sort.
+    """
+    values = np.asarray(values, dtype=np.int64)
+    space = 1
+    for r in radices:
+        space *= max(int(r), 1)
+    if values.size == 0:
+        return tuple(np.zeros(0, dtype=np.int64) for _ in columns), values
+    if space < 2**62:
+        key = np.zeros(values.size, dtype=np.int64)
+        for col, r in zip(columns, radices, strict=True):
+            key *= max(int(r), 1)
+            key += col
+        if space <= _DENSE_KEYS and space <= 8 * values.size + 1024:
+            sums = np.bincount(key, weights=values, minlength=space)
+            uniq = np.flatnonzero(sums)
+            totals = sums[uniq].astype(np.int64)
+        else:
+            order = np.argsort(key, kind="stable")
+            key = key[order]
+            starts = np.flatnonzero(np.concatenate(([True], key[1:] != key[:-1])))
+            totals = np.add.reduceat(values[order], starts)
+            uniq = key[starts]
+            nonzero = totals != 0
+            uniq, totals = uniq[nonzero], totals[nonzero]
+        out: list[np.ndarray] = []
+        for r in reversed(radices):
+            r = max(int(r), 1)
+            out.append(uniq % r)
+            uniq = uniq // r
+        return tuple(reversed(out)), totals
+    order = np.lexsort(tuple(reversed(columns)))
+    cols = tuple(c[order] for c in columns)
+    change = np.zeros(values.size, dtype=bool)
+    change[0] = True
+    for c in cols:
+        change[1:] |= c[1:] != c[:-1]
+    starts = np.flatnonzero(change)
+    totals = np.add.reduceat(values[order], starts)
+    nonzero = totals != 0
+    return tuple(c[starts][nonzero] for c in cols), totals[nonzero]
+
+
+_DENSE_KEYS = 1 << 22
+
+
+def coincidence_numerators(groups: Groups, n_values: int) -> Numerators:
+    """The integer numerators of the coincidence matrix, per cell and item size.
+
+    o_ck = sum over pairable items u of (n_uc n_uk - [c = k] n_uc) / (m_u - 1) (Krippendorff
+    2011); here the part before the division is summed per (c, k, m_u).
+    """
+    p = pairable_pairs(groups)
+    cols: list[tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]] = []
+    max_m = int(p.m.max()) + 1 if p.m.size else 1
+    for left, right in p.pairs():
+        num = p.count[left] * p.count[right] - np.where(left == right, p.count[left], 0)
+        keys, total = sum_by_key(
+            (p.value[left], p.value[right], p.m[left]), (n_values, n_values, max_m), num
+        )
+        cols.append((*keys, total))
+    return _join_numerators(cols, n_values, max_m)
+
+
+def _join_numerators(
+    parts: list[tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]], n_values: int, max_m: int
+) -> Numerators:
+    if not parts:
+        empty = np.zeros(0, dtype=np.int64)
+        return Numerators(empty, empty, empty, empty)
+    if len(parts) == 1:
+        c, k, m, num = parts[0]
+        return Numerators(c, k, m, num)
+    joined = [np.concatenate([p[i] for p in parts]) for i in range(4)]
+    (c, k, m), num = sum_by_key(tuple(joined[:3]), (n_values, n_values, max_m), joined[3])
+    return Numerators(c, k, m, num)
+
+
+def to_matrix(numerators: Numerators, n_values: int) -> sp.csr_matrix:
+    """o_ck from the numerators: each divided by (m - 1), summed over m in increasing order."""
+    c, k, m, num = numerators.c, numerators.k, numerators.m, numerators.num
+    if c.size == 0:
+        return sp.csr_matrix((n_values, n_values))
+    contrib = num / (m - 1.0)
+    starts = np.flatnonzero(np.concatenate(([True], (c[1:] != c[:-1]) | (k[1:] != k[:-1]))))
+    data = np.add.reduceat(contrib, starts)
+    return sp.csr_matrix((data, (c[starts], k[starts])), shape=(n_values, n_values))
+
+
+def item_disagreement(
+    groups: Groups, delta: Metric, value_map: np.ndarray | None = None
+) -> np.ndarray:
+    """d_u per item: sum over c, k of n_uc n_uk delta^2_ck / (m_u - 1); zero if unpairable.
+
+    The sum over d_u is the observed-disagreement sum; the bootstrap resamples it. Each item's
+    figure depends only on that item's value counts (pairs summed in a fixed order), so it is
+    the same whichever other items were coded with it. ``value_map`` turns the groups' value
+    codes into the codes ``delta`` knows (for a difference function built on all the data).
+    """
+    p = pairable_pairs(groups)
+    d_u = np.zeros(groups.m.size)
+    values = p.value if value_map is None else value_map[p.value]
+    count = p.count.astype(np.float64)
+    for left, right in p.pairs():
+        weight = 1.0 / (p.m[left] - 1.0)
+        d_pair = count[left] * count[right] * weight * delta.pairs(values[left], values[right])
+        d_u += np.bincount(p.unit[left], weights=d_pair, minlength=d_u.size)
+    return d_u
+
+
 def coincidences(
     groups: Groups, n_values: int, delta: Metric | None = None
 ) -> tuple[sp.csr_matrix, np.ndarray | None]:
     """The coincidence matrix o_ck and, with ``delta``, each item's observed disagreement.
 
     o_ck = sum over pairable items u of (n_uc n_uk - [c = k] n_uc) / (m_u - 1) (Krippendorff
-    2011). The per-item figure is d_u = sum over c, k of n_uc n_uk delta^2_ck / (m_u - 1), so the
-    observed-disagreement sum is sum over u of d_u.
+    2011), from :func:`coincidence_numerators`. The per-item figure is
+    d_u = sum over c, k of n_uc n_uk delta^2_ck / (m_u - 1) (:func:`item_disagreement`).
 
     Returns:
         The matrix (values x values, sparse) and d_u per item (zero for unpairable items), or
         None without ``delta``.
     """
-    m = groups.m
-    keep = m[groups.unit] >= 2
-    g_unit, g_value = groups.unit[keep], groups.value[keep]
-    g_count = groups.count[keep].astype(np.float64)
-    d_u = np.zeros(m.size) if delta is not None else None
-    if g_unit.size == 0:
-        return sp.csr_matrix((n_values, n_values)), d_u
-    first = np.concatenate(([True], g_unit[1:] != g_unit[:-1]))
-    unit_first = np.flatnonzero(first)
-    per_unit = np.diff(np.append(unit_first, g_unit.size))
-    owner = np.repeat(np.arange(unit_first.size), per_unit)
-    rows: list[np.ndarray] = []
-    cols: list[np.ndarray] = []
-    vals: list[np.ndarray] = []
-    for lo, hi in _chunks(per_unit.astype(np.float64) ** 2, _PAIR_BUDGET):
-        g_lo, g_hi = unit_first[lo], unit_first[hi] if hi < unit_first.size else g_unit.size
-        g = np.arange(g_lo, g_hi)
-        reps = per_unit[owner[g]]
-        left = np.repeat(g, reps)
-        offsets = np.arange(left.size) - np.repeat(np.cumsum(reps) - reps, reps)
-        right = unit_first[owner[left]] + offsets
-        weight = 1.0 / (m[g_unit[left]] - 1.0)
-        same = left == right
-        contrib = (g_count[left] * g_count[right] - np.where(same, g_count[left], 0.0)) * weight
-        rows.append(g_value[left])
-        cols.append(g_value[right])
-        vals.append(contrib)
-        if delta is not None and d_u is not None:
-            d_pair = (
-                g_count[left] * g_count[right] * weight * delta.pairs(g_value[left], g_value[right])
-            )
-            d_u += np.bincount(g_unit[left], weights=d_pair, minlength=m.size)
-    matrix = sp.coo_matrix(
-        (np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
-        shape=(n_values, n_values),
-    ).tocsr()
-    matrix.sum_duplicates()
-    return matrix, d_u
+    matrix = to_matrix(coincidence_numerators(groups, n_values), n_values)
+    return matrix, (item_disagreement(groups, delta) if delta is not None else None)
 
 
 @dataclass
@@ -313,7 +472,7 @@ def alpha_from_coincidences(
     """alpha = 1 - (n - 1) * sum o_ck delta^2_ck / sum n_c n_k delta^2_ck.
 
     ``expected_sum`` (sum n_c n_k delta^2_ck for this matrix's marginals) may be passed when the
-    caller computed it already, for many matrices at once (:func:`leave_one_out`).
+    caller computed it already, for many matrices at once (the report's leave-one-out pass).
     """
     marg = np.asarray(matrix.sum(axis=1)).ravel()
     n = float(marg.sum())
@@ -405,19 +564,33 @@ def _renumber(per_code: np.ndarray, table: np.ndarray, used: np.ndarray, size: i
     return out
 
 
-def label_alphas(coded: Coded) -> LabelParts:
-    """Each label as binary nominal data (given / not given), in one pass over (item, label).
+@dataclass
+class LabelSums:
+    """Per label, sums over pairable items that add up across parts of the data.
 
-    With n_c the pairable values carrying label c, n all pairable values and o_cc the diagonal
-    coincidence sum over items of n_uc (n_uc - 1) / (m_u - 1), the binary alpha is
-    1 - (n - 1) (n_c - o_cc) / (n_c (n - n_c)); for single-label data this is the one-vs-rest
-    alpha read off the coincidence matrix's diagonal and totals. For multi-label data m_u counts
-    the annotators who labelled the item and n_uc those who gave c.
+    ``agree`` rows are (label, m, sum of n_uc (n_uc - 1)) sorted by (label, m): the diagonal
+    coincidence of label c is the sum over m of those numerators divided by (m - 1).
+    """
+
+    agree_label: np.ndarray
+    agree_m: np.ndarray
+    agree_num: np.ndarray
+    marked: np.ndarray
+    """Per label code: pairable values carrying it (n_c), int64."""
+    items: np.ndarray
+    """Per label code: pairable items where at least one annotator gave it, int64."""
+
+
+def label_sums(coded: Coded) -> LabelSums:
+    """Each label as binary data (given / not given): its sums, in one pass over (item, label).
+
+    For multi-label data m_u counts the annotators who labelled the item and n_uc those who
+    gave label c.
     """
     n_labels = len(coded.label_names)
     m = coded.unit_sizes()
     # Work on the label codes as stored when they are not renumbered yet, and renumber the
-    # per-label sums at the end: each sum adds the same terms in the same order either way.
+    # per-label sums at the end (the sums are integers, so the order does not matter).
     codes = coded.label_codes
     table = codes.table if isinstance(codes, Lookup) and codes._final is None else None
     raw = codes.stored if table is not None else coded.label_code
@@ -426,25 +599,49 @@ def label_alphas(coded: Coded) -> LabelParts:
     g_unit, g_label, count = label_groups(coded.label_unit, raw, n_bins, sizes)
     m_g = m[g_unit]
     keep = m_g >= 2
-    g_label, count, m_g = g_label[keep], count[keep].astype(np.float64), m_g[keep]
-    agreeing = np.bincount(g_label, weights=count * (count - 1.0) / (m_g - 1.0), minlength=n_bins)
-    marked = np.bincount(g_label, weights=count, minlength=n_bins)
-    n_items = np.bincount(g_label, minlength=n_bins)
+    g_label, count, m_g = g_label[keep], count[keep].astype(np.int64), m_g[keep].astype(np.int64)
+    marked = np.bincount(g_label, weights=count, minlength=n_bins).astype(np.int64)
+    n_items = np.bincount(g_label, minlength=n_bins).astype(np.int64)
+    max_m = int(m_g.max()) + 1 if m_g.size else 1
     if table is not None:
         used = table >= 0
-        agreeing, marked, n_items = (
-            _renumber(x, table, used, n_labels) for x in (agreeing, marked, n_items)
-        )
-    n = float(m[m >= 2].sum())
+        g_label = table[g_label]
+        marked, n_items = (_renumber(x, table, used, n_labels) for x in (marked, n_items))
+    (a_label, a_m), a_num = sum_by_key((g_label, m_g), (n_labels, max_m), count * (count - 1))
+    return LabelSums(a_label, a_m, a_num, marked, n_items)
+
+
+def label_parts(sums: LabelSums, n_labels: int, n: float, multi: bool) -> LabelParts:
+    """The one-vs-rest alphas from :class:`LabelSums` and the pairable value count ``n``.
+
+    With n_c the pairable values carrying label c, n all pairable values and o_cc the diagonal
+    coincidence sum over items of n_uc (n_uc - 1) / (m_u - 1), the binary alpha is
+    1 - (n - 1) (n_c - o_cc) / (n_c (n - n_c)); for single-label data this is the one-vs-rest
+    alpha read off the coincidence matrix's diagonal and totals.
+    """
+    agreeing = np.zeros(n_labels)
+    if sums.agree_label.size:
+        contrib = sums.agree_num / (sums.agree_m - 1.0)
+        lab = sums.agree_label
+        starts = np.flatnonzero(np.concatenate(([True], lab[1:] != lab[:-1])))
+        agreeing[lab[starts]] = np.add.reduceat(contrib, starts)
+    marked = sums.marked.astype(np.float64)
     with np.errstate(divide="ignore", invalid="ignore"):
         alpha = 1.0 - (n - 1.0) * (marked - agreeing) / (marked * (n - marked))
     alpha[(marked <= 0) | (marked >= n)] = np.nan
     overall = None
-    if not coded.multi and n >= 2:
+    if not multi and n >= 2:
         expected = n * n - float((marked * marked).sum())
         if expected > 0:
             overall = float(1.0 - (n - 1.0) * (n - float(agreeing.sum())) / expected)
-    return LabelParts(alpha, n_items, marked, agreeing, n, overall)
+    return LabelParts(alpha, sums.items, marked, agreeing, n, overall)
+
+
+def label_alphas(coded: Coded) -> LabelParts:
+    """Each label as binary nominal data (given / not given); see :func:`label_parts`."""
+    m = coded.unit_sizes()
+    n = float(m[m >= 2].sum())
+    return label_parts(label_sums(coded), len(coded.label_names), n, coded.multi)
 
 
 # -- leave one annotator out ------------------------------------------------------------------
@@ -460,54 +657,43 @@ def _ranges(starts: np.ndarray, stops: np.ndarray) -> np.ndarray:
     return np.repeat(starts, lengths) + offsets
 
 
-def leave_one_out(
-    coded: Coded,
-    matrix: sp.csr_matrix,
-    factory: Callable[[np.ndarray], Metric],
-) -> list[AlphaParts]:
-    """Alpha with each annotator's values removed, one entry per annotator code.
+def leave_one_out_numerators(coded: Coded) -> list[Numerators]:
+    """Per annotator code: how the coincidence numerators change without that annotator.
 
-    Only the items an annotator judged change, so each matrix is the full one minus those items'
-    coincidences plus the same items' coincidences without the annotator: the work is the sum of
-    the squared item sizes, not annotators x items.
+    Only the items an annotator judged change: their coincidences without the annotator minus
+    their coincidences with everyone. The work is the sum of the squared item sizes, not
+    annotators x items; the changes are integers, so they add up across parts of the data.
     """
     starts = coded.unit_starts()
-    order = np.argsort(coded.annotator, kind="stable")
-    bounds = np.searchsorted(coded.annotator[order], np.arange(coded.n_annotators + 1))
+    annotator = coded.annotator
+    order = np.argsort(annotator, kind="stable")
+    bounds = np.searchsorted(annotator[order], np.arange(coded.n_annotators + 1))
+    out: list[Numerators] = []
     n_values, n_units = coded.n_values, coded.n_units
-    reduced_all: list[sp.csr_matrix] = []
     for a in range(coded.n_annotators):
         own = order[bounds[a] : bounds[a + 1]]
         units = np.unique(coded.unit[own])
         idx = _ranges(starts[units], starts[units + 1])
         sub_unit, sub_value = coded.unit[idx], coded.value[idx]
-        others = coded.annotator[idx] != a
-        before, _ = coincidences(value_groups(sub_unit, sub_value, n_values, n_units), n_values)
-        after, _ = coincidences(
+        others = annotator[idx] != a
+        before = coincidence_numerators(
+            value_groups(sub_unit, sub_value, n_values, n_units), n_values
+        )
+        after = coincidence_numerators(
             value_groups(sub_unit[others], sub_value[others], n_values, n_units), n_values
         )
-        reduced = (matrix - before + after).tocsr()
-        reduced.data[np.abs(reduced.data) < 1e-9] = 0.0
-        reduced.eliminate_zeros()
-        reduced_all.append(reduced)
-    if factory is OrdinalMetric or not reduced_all:
-        # The ordinal difference function depends on each matrix's own marginals.
-        return [alpha_from_coincidences(r, factory, coded.value_names) for r in reduced_all]
-    # Every other difference function is fixed, so the expected sums of many matrices come
-    # from one pass over the difference blocks (MASI recomputes its blocks on every call).
-    margs = np.vstack([np.asarray(r.sum(axis=1)).ravel() for r in reduced_all])
-    metric = factory(margs[0])
-    chunk = max(1, _BLOCK_BUDGET // max(n_values, 1))
-    sums = np.concatenate(
-        [
-            np.atleast_1d(metric.expected_sum(margs[i : i + chunk]))
-            for i in range(0, len(reduced_all), chunk)
-        ]
-    )
-    return [
-        alpha_from_coincidences(r, factory, coded.value_names, expected_sum=float(total))
-        for r, total in zip(reduced_all, sums, strict=True)
-    ]
+        max_m = int(max(before.m.max(initial=0), after.m.max(initial=0))) + 1
+        out.append(
+            _join_numerators(
+                [
+                    (after.c, after.k, after.m, after.num),
+                    (before.c, before.k, before.m, -before.num),
+                ],
+                n_values,
+                max_m,
+            )
+        )
+    return out
 
 
 # -- bootstrap ----------------------------------------------------------------------------------

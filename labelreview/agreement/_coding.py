@@ -87,6 +87,10 @@ class Coded:
     item_name_at: np.ndarray | None = None
     """Position in ``item_name_source`` of each item code's name (None: position = code)."""
     notes: list[str] = field(default_factory=list)
+    n_null_rows: int = 0
+    """Rows left out because their item, annotator or label was empty."""
+    n_repeated: int = 0
+    """Repeated (item, annotator, label) rows counted once."""
     _sizes: np.ndarray | None = field(default=None, repr=False)
 
     @property
@@ -491,6 +495,7 @@ def code_annotations(data: Any, level: str = "nominal") -> Coded:
     notes: list[str] = []
     item_col, ann_col, label_col = (frame[c] for c in ANNOTATION_COLUMNS)
     nulls = (item_col.isna() | ann_col.isna() | label_col.isna()).to_numpy()
+    n_null = int(nulls.sum())
     if nulls.any():
         keep = ~nulls
         notes.append(
@@ -543,9 +548,10 @@ def code_annotations(data: Any, level: str = "nominal") -> Coded:
             item_name_source=items.name_source,
             item_name_at=items.name_at,
             notes=notes,
+            n_null_rows=n_null,
             _sizes=sizes,
         )
-    single, unit, ann_final, lab_final = _drop_repeats(
+    single, unit, ann_final, lab_final, repeated = _drop_repeats(
         unit, ann.final(), lab.final(), n_units, n_ann, n_lab, notes
     )
     if single:
@@ -573,6 +579,7 @@ def code_annotations(data: Any, level: str = "nominal") -> Coded:
     else:
         coded = _code_sets(unit, ann_final, lab_final, n_units, annotator_names, label_names, notes)
     coded.item_name_source, coded.item_name_at = items.name_source, items.name_at
+    coded.n_null_rows, coded.n_repeated = n_null, repeated
     return coded
 
 
@@ -620,11 +627,11 @@ def _drop_repeats(
     n_ann: int,
     n_lab: int,
     notes: list[str],
-) -> tuple[bool, np.ndarray, np.ndarray, np.ndarray]:
+) -> tuple[bool, np.ndarray, np.ndarray, np.ndarray, int]:
     """Some item x annotator pair repeats: drop exact duplicate rows, then look again.
 
-    Returns whether the data is single-label after all, and the codes sorted by item,
-    annotator and label.
+    Returns whether the data is single-label after all, the codes sorted by item, annotator
+    and label, and how many repeated rows were dropped.
     """
     if float(n_units) * n_ann * n_lab >= 2.0**62:
         raise UsageError(
@@ -641,7 +648,7 @@ def _drop_repeats(
     ann = pair_key % n_ann
     unit = pair_key // n_ann
     single = not (pair_key[1:] == pair_key[:-1]).any()
-    return single, unit, ann, lab
+    return single, unit, ann, lab, int(dropped)
 
 
 def _code_sets(

@@ -1,8 +1,10 @@
-"""Chance-corrected agreement beside alpha: Cohen's and Fleiss' kappa, Gwet's AC1, percent
-agreement, and each annotator's agreement with the other annotators' majority.
+"""Cohen's kappa (from confusion counts of annotator pairs) and each annotator's agreement with
+the other annotators' majority.
 
-All work on the value groups of :mod:`labelreview.agreement._alpha` (per item x value counts)
-or, for Cohen's kappa, on pairs of annotations within items generated in bounded chunks.
+Both count on the value groups of :mod:`labelreview.agreement._alpha` (per item x value counts)
+or on pairs of annotations within items generated in bounded chunks; the counts are integers,
+so :mod:`labelreview.agreement._sums` adds them up across parts of the data. Percent agreement,
+Gwet's AC1 and Fleiss' kappa are read off those sums in :mod:`labelreview.agreement._report`.
 """
 
 from __future__ import annotations
@@ -11,72 +13,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from labelreview.agreement._alpha import Groups, _chunks
+from labelreview.agreement._alpha import Groups, _chunks, sum_by_key
 from labelreview.agreement._coding import Coded
 
 WEIGHTS: tuple[str | None, ...] = (None, "linear", "quadratic")
 _DENSE_BUDGET = 20_000_000
-
-
-def percent_from_groups(groups: Groups) -> tuple[float | None, int]:
-    """Mean over pairable items of the share of agreeing annotator pairs, and the item count.
-
-    p_u = sum over c of n_uc (n_uc - 1) / (m_u (m_u - 1)); None without pairable items.
-    """
-    m_g = groups.m[groups.unit].astype(np.float64)
-    keep = m_g >= 2
-    count = groups.count[keep].astype(np.float64)
-    share = count * (count - 1.0) / (m_g[keep] * (m_g[keep] - 1.0))
-    n_pairable = int((groups.m >= 2).sum())
-    if n_pairable == 0:
-        return None, 0
-    return float(share.sum() / n_pairable), n_pairable
-
-
-def gwet_from_groups(groups: Groups, n_categories: int) -> tuple[float | None, str | None]:
-    """Gwet's AC1 for several raters with missing ratings (Gwet 2008; handbook, chapter 4).
-
-    p_a as in :func:`percent_from_groups`; pi_c = mean over items with a rating of n_uc / m_u;
-    p_e = sum of pi_c (1 - pi_c) / (q - 1) with q categories; AC1 = (p_a - p_e) / (1 - p_e).
-    """
-    p_a, n_pairable = percent_from_groups(groups)
-    if p_a is None:
-        return None, "no item has two or more annotations"
-    if n_categories < 2:
-        return None, "only one category occurs, so chance agreement (q - 1 = 0) is undefined"
-    rated = int((groups.m >= 1).sum())
-    share = groups.count / groups.m[groups.unit]
-    pi = np.bincount(groups.value, weights=share, minlength=n_categories) / rated
-    p_e = float((pi * (1.0 - pi)).sum() / (n_categories - 1))
-    return float((p_a - p_e) / (1.0 - p_e)), None
-
-
-def fleiss_from_groups(groups: Groups, n_categories: int) -> tuple[float | None, str | None]:
-    """Fleiss' kappa (Fleiss 1971), defined only when every item has the same number of ratings.
-
-    P_i = (sum_j n_ij^2 - m) / (m (m - 1)); P = mean P_i; p_j = sum_i n_ij / (N m);
-    P_e = sum p_j^2; kappa = (P - P_e) / (1 - P_e).
-    """
-    rated = groups.m[groups.m > 0]
-    if rated.size == 0:
-        return None, "there are no annotations"
-    low, high = int(rated.min()), int(rated.max())
-    if low != high:
-        return None, (
-            f"items have between {low} and {high} annotations; Fleiss' kappa needs the same "
-            "number for every item"
-        )
-    if low < 2:
-        return None, "every item has one annotation, so there is nothing to compare"
-    m = float(low)
-    n_items = rated.size
-    count = groups.count.astype(np.float64)
-    p_bar = float(((count * count).sum() - n_items * m) / (n_items * m * (m - 1.0)))
-    p_j = np.bincount(groups.value, weights=count, minlength=n_categories) / (n_items * m)
-    p_e = float((p_j * p_j).sum())
-    if p_e >= 1.0 - 1e-12:
-        return None, "only one category occurs, so chance agreement is 1 and kappa is undefined"
-    return (p_bar - p_e) / (1.0 - p_e), None
+_PAIR_BUDGET = 1_000_000
+"""Annotation pairs generated at once for Cohen's kappa (bounds memory: about 100 MB)."""
 
 
 def kappa_from_confusion(confusion: np.ndarray, weights: str | None = None) -> np.ndarray:
@@ -120,13 +63,29 @@ class PairParts:
     """Annotator pairs that shared at least one item but fewer than the minimum."""
 
 
-def pairwise_cohen(coded: Coded, min_items: int, weighted: bool) -> PairParts:
-    """Confusion counts for every annotator pair from pairs of annotations within items."""
+@dataclass
+class CohenCounts:
+    """Pairs of annotations within items, counted per (first, second, value1, value2).
+
+    ``first < second`` by annotator code (codes follow the sorted names, so this holds in any
+    part of the data); integer counts, so parts add up exactly.
+    """
+
+    first: np.ndarray
+    second: np.ndarray
+    value1: np.ndarray
+    value2: np.ndarray
+    count: np.ndarray
+
+
+def cohen_counts(coded: Coded) -> CohenCounts:
+    """Confusion counts for every annotator pair, from pairs of annotations within items."""
     n_ann, v = coded.n_annotators, coded.n_values
     starts = coded.unit_starts()
     sizes = np.diff(starts)
-    keys: list[np.ndarray] = []
-    for lo, hi in _chunks(sizes.astype(np.float64) ** 2, _DENSE_BUDGET // 4):
+    parts: list[tuple[tuple[np.ndarray, ...], np.ndarray]] = []
+    radices = (n_ann, n_ann, v, v)
+    for lo, hi in _chunks(sizes.astype(np.float64) ** 2, _PAIR_BUDGET):
         units = np.arange(lo, hi)
         reps = sizes[units]
         rows = np.arange(starts[lo], starts[hi])
@@ -137,48 +96,157 @@ def pairwise_cohen(coded: Coded, min_items: int, weighted: bool) -> PairParts:
         right = starts[np.repeat(owner, own_reps)] + offsets
         a1, a2 = coded.annotator[left], coded.annotator[right]
         keep = a1 < a2
-        pair = a1[keep] * n_ann + a2[keep]
-        key = (pair * v + coded.value[left[keep]]) * v + coded.value[right[keep]]
-        uniq, cnt = np.unique(key, return_counts=True)
-        keys.append(np.stack([uniq, cnt]))
-    if not keys:
+        keys = (a1[keep], a2[keep], coded.value[left[keep]], coded.value[right[keep]])
+        parts.append(sum_by_key(keys, radices, np.ones(keys[0].size, dtype=np.int64)))
+    if not parts:
+        none = np.zeros(0, dtype=np.int64)
+        return CohenCounts(none, none, none, none, none)
+    if len(parts) > 1:
+        cols = tuple(np.concatenate([p[0][i] for p in parts]) for i in range(4))
+        keys_all, total = sum_by_key(cols, radices, np.concatenate([p[1] for p in parts]))
+    else:
+        keys_all, total = parts[0]
+    return CohenCounts(*keys_all, total)
+
+
+def cohen_from_counts(
+    counts: CohenCounts, n_values: int, min_items: int, weighted: bool
+) -> PairParts:
+    """Cohen's kappa per annotator pair with at least ``min_items`` shared items.
+
+    ``counts`` must be sorted by (first, second, value1, value2), as :func:`cohen_counts` and
+    the sums of :mod:`labelreview.agreement._sums` keep them.
+    """
+    v = n_values
+    if counts.first.size == 0:
         none = np.zeros(0, dtype=np.int64)
         return PairParts(none, none, none, np.zeros(0), kappa={}, skipped=0)
-    joined = np.concatenate(keys, axis=1)
-    uniq, inverse = np.unique(joined[0], return_inverse=True)
-    counts = np.bincount(inverse.ravel(), weights=joined[1]).astype(np.int64)
-    cell = uniq % (v * v)
-    pair = uniq // (v * v)
-    pair_ids, pair_of = np.unique(pair, return_inverse=True)
-    pair_of = pair_of.ravel()
-    totals = np.bincount(pair_of, weights=counts)
+    first, second = counts.first, counts.second
+    new_pair = np.concatenate(([True], (first[1:] != first[:-1]) | (second[1:] != second[:-1])))
+    pair_of = np.cumsum(new_pair) - 1
+    starts = np.flatnonzero(new_pair)
+    weights = counts.count.astype(np.float64)
+    totals = np.bincount(pair_of, weights=weights)
     enough = totals >= min_items
     skipped = int((~enough).sum())
     chosen = np.flatnonzero(enough)
-    local = np.full(pair_ids.size, -1)
+    local = np.full(starts.size, -1)
     local[chosen] = np.arange(chosen.size)
-    agree = np.bincount(pair_of, weights=np.where(cell // v == cell % v, counts, 0))
+    same = counts.value1 == counts.value2
+    agree = np.bincount(pair_of, weights=np.where(same, weights, 0.0))
+    cell = counts.value1 * v + counts.value2
     kinds: tuple[str | None, ...] = WEIGHTS if weighted else (None,)
     kappa = {w: np.full(chosen.size, np.nan) for w in kinds}
     sel = local[pair_of] >= 0
-    per_chunk = max(1, _DENSE_BUDGET // max(v * v, 1))
-    for lo in range(0, chosen.size, per_chunk):
+    if v * v > _DENSE_BUDGET:
+        # One pair's confusion matrix alone would be too big (53,000 labels: 22 GB): work
+        # from the observed cells and the two marginals instead.
+        for w in kinds:
+            kappa[w][:] = _sparse_kappa(
+                pair_of[sel], counts.value1[sel], counts.value2[sel], weights[sel], w
+            )[chosen]
+        per_chunk = 0
+    else:
+        per_chunk = max(1, _DENSE_BUDGET // max(v * v, 1))
+    for lo in range(0, chosen.size if per_chunk else 0, per_chunk or 1):
         hi = min(chosen.size, lo + per_chunk)
         part = sel & (local[pair_of] >= lo) & (local[pair_of] < hi)
         conf = np.zeros((hi - lo) * v * v)
-        np.add.at(conf, (local[pair_of[part]] - lo) * v * v + cell[part], counts[part])
+        np.add.at(conf, (local[pair_of[part]] - lo) * v * v + cell[part], weights[part])
         conf = conf.reshape(hi - lo, v, v)
         for w in kinds:
             kappa[w][lo:hi] = kappa_from_confusion(conf, w)
-    ids = pair_ids[chosen]
     return PairParts(
-        first=ids // n_ann,
-        second=ids % n_ann,
+        first=first[starts][chosen],
+        second=second[starts][chosen],
         n_items=totals[chosen].astype(np.int64),
         agreement=agree[chosen] / totals[chosen],
         kappa=kappa,
         skipped=skipped,
     )
+
+
+def _sparse_kappa(
+    pair: np.ndarray,
+    value1: np.ndarray,
+    value2: np.ndarray,
+    count: np.ndarray,
+    weights: str | None,
+) -> np.ndarray:
+    """:func:`kappa_from_confusion` for many pairs without any V x V matrix.
+
+    Same definition (kappa = 1 - sum w o / sum w e, w on the category positions). Observed
+    disagreement is summed over the observed cells; expected disagreement over the two
+    marginals: unweighted n - sum_i r_i c_i / n; quadratic from the first two moments of r and
+    c; linear from cumulative sums of c in value order. Indexed by pair code, so pairs that do
+    not occur come out as NaN.
+    """
+    n_pairs = int(pair.max()) + 1 if pair.size else 0
+    v1 = value1.astype(np.float64)
+    v2 = value2.astype(np.float64)
+    n = np.bincount(pair, weights=count, minlength=n_pairs)
+    if weights is None:
+        cell_w = (value1 != value2).astype(np.float64)
+    elif weights == "linear":
+        cell_w = np.abs(v1 - v2)
+    else:
+        cell_w = (v1 - v2) ** 2
+    observed = np.bincount(pair, weights=count * cell_w, minlength=n_pairs)
+    # Marginals as (pair, value) -> weight, for the first (r) and second (c) annotator.
+    keys = np.concatenate([pair * 2, pair * 2 + 1])
+    values = np.concatenate([value1, value2]).astype(np.int64)
+    order = np.lexsort((values, keys))
+    keys, values, w = keys[order], values[order], np.concatenate([count, count])[order]
+    first = np.concatenate(([True], (keys[1:] != keys[:-1]) | (values[1:] != values[:-1])))
+    group = np.cumsum(first) - 1
+    g_key, g_val = keys[first], values[first]
+    g_w = np.bincount(group, weights=w)
+    g_pair, is_c = g_key // 2, (g_key % 2).astype(bool)
+    pos = g_val.astype(np.float64)
+    if weights is None:
+        # sum_i r_i c_i: the rows and columns of one pair meet on equal values.
+        r_keys = g_pair[~is_c] * (int(g_val.max()) + 1) + g_val[~is_c]
+        c_keys = g_pair[is_c] * (int(g_val.max()) + 1) + g_val[is_c]
+        _, ri, ci = np.intersect1d(r_keys, c_keys, assume_unique=True, return_indices=True)
+        rc = np.bincount(
+            g_pair[~is_c][ri], weights=g_w[~is_c][ri] * g_w[is_c][ci], minlength=n_pairs
+        )
+        expected_sum = n * n - rc
+    elif weights == "quadratic":
+        m = {}
+        for side, mask in (("r", ~is_c), ("c", is_c)):
+            for k in (1, 2):
+                m[side, k] = np.bincount(
+                    g_pair[mask], weights=g_w[mask] * pos[mask] ** k, minlength=n_pairs
+                )
+        expected_sum = n * m["r", 2] + n * m["c", 2] - 2.0 * m["r", 1] * m["c", 1]
+    else:
+        # sum_i r_i sum_j c_j |i - j|, in value order within each pair: for each r value i,
+        # c at or below contributes i*C - S, c above contributes (S_all - S) - i*(C_all - C).
+        c_w = np.where(is_c, g_w, 0.0)
+        # Entries are sorted by (pair * 2 + side, value): reorder to (pair, value, side c first).
+        order2 = np.lexsort((~is_c, g_val, g_pair))
+        pr, vl, cw, rw = g_pair[order2], pos[order2], c_w[order2], np.where(is_c, 0.0, g_w)[order2]
+        c_cum = np.cumsum(cw)
+        s_cum = np.cumsum(cw * vl)
+        starts = np.concatenate(([True], pr[1:] != pr[:-1]))
+        base_idx = np.flatnonzero(starts)
+        pair_start = np.repeat(base_idx, np.diff(np.append(base_idx, pr.size)))
+        c_before = np.concatenate(([0.0], c_cum))[pair_start]
+        s_before = np.concatenate(([0.0], s_cum))[pair_start]
+        c_le, s_le = c_cum - c_before, s_cum - s_before
+        c_all = np.bincount(pr, weights=cw, minlength=n_pairs)[pr]
+        s_all = np.bincount(pr, weights=cw * vl, minlength=n_pairs)[pr]
+        term = rw * ((vl * c_le - s_le) + (s_all - s_le) - vl * (c_all - c_le))
+        expected_sum = np.bincount(pr, weights=term, minlength=n_pairs)
+    expected = expected_sum / np.where(n > 0, n, 1.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(expected > 1e-12, 1.0 - observed / expected, np.nan)
+
+
+def pairwise_cohen(coded: Coded, min_items: int, weighted: bool) -> PairParts:
+    """Cohen's kappa for every annotator pair sharing ``min_items`` items."""
+    return cohen_from_counts(cohen_counts(coded), coded.n_values, min_items, weighted)
 
 
 def majority_agreement(coded: Coded, groups: Groups) -> tuple[np.ndarray, np.ndarray]:

@@ -20,13 +20,9 @@ from labelreview.agreement._alpha import (
     value_groups,
 )
 from labelreview.agreement._coding import code_annotations
-from labelreview.agreement._kappa import (
-    WEIGHTS,
-    fleiss_from_groups,
-    gwet_from_groups,
-    kappa_from_confusion,
-    percent_from_groups,
-)
+from labelreview.agreement._kappa import WEIGHTS, kappa_from_confusion
+from labelreview.agreement._report import fleiss_from_sums, gwet_from_sums, percent_from_sums
+from labelreview.agreement._sums import AgreementSums
 from labelreview.errors import UsageError
 
 
@@ -117,9 +113,7 @@ def percent_agreement(data: Any, *, replace_undefined_by: float | None = None) -
         >>> percent_agreement([["a", "a", "b"], ["a", "b", "b"]])
         0.6666666666666666
     """
-    coded = code_annotations(data, "nominal")
-    groups = value_groups(coded.unit, coded.value, coded.n_values, coded.n_units)
-    value, _ = percent_from_groups(groups)
+    value = percent_from_sums(_kappa_sums(data))
     if value is None:
         return _undefined(
             "percent agreement", "no item has two or more values", replace_undefined_by
@@ -151,12 +145,11 @@ def gwet_ac1(data: Any, *, replace_undefined_by: float | None = None) -> float |
         >>> round(gwet_ac1([["a", "a", "b", "a"], ["a", "b", "b", "a"]]), 3)
         0.529
     """
-    coded = code_annotations(data, "nominal")
-    if coded.multi:
+    sums = _kappa_sums(data)
+    if sums.multi:
         reason = "multi-label data: AC1 needs one category per annotator and item"
         return _undefined("Gwet's AC1", reason, replace_undefined_by)
-    groups = value_groups(coded.unit, coded.value, coded.n_values, coded.n_units)
-    value, reason = gwet_from_groups(groups, coded.n_values)
+    value, reason = gwet_from_sums(sums)
     if value is None:
         return _undefined("Gwet's AC1", reason, replace_undefined_by)
     return value
@@ -185,15 +178,19 @@ def fleiss_kappa(data: Any, *, replace_undefined_by: float | None = None) -> flo
         >>> round(fleiss_kappa(matrix), 3)
         0.745
     """
-    coded = code_annotations(data, "nominal")
-    if coded.multi:
+    sums = _kappa_sums(data)
+    if sums.multi:
         reason = "multi-label data: Fleiss' kappa needs one category per annotator and item"
         return _undefined("Fleiss' kappa", reason, replace_undefined_by)
-    groups = value_groups(coded.unit, coded.value, coded.n_values, coded.n_units)
-    value, reason = fleiss_from_groups(groups, coded.n_values)
+    value, reason = fleiss_from_sums(sums)
     if value is None:
         return _undefined("Fleiss' kappa", reason, replace_undefined_by)
     return value
+
+
+def _kappa_sums(data: Any) -> AgreementSums:
+    """The sums behind percent agreement, AC1 and Fleiss' kappa (as the report computes them)."""
+    return AgreementSums.from_coded(code_annotations(data, "nominal"), "nominal", {"kappas"})
 
 
 def _ordered_labels(values: Sequence[Any]) -> list[Any]:

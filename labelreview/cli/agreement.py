@@ -15,7 +15,16 @@ from typing import Any
 
 import click
 
-from labelreview.cli._common import dataset_options, handle_errors, load, note, shorten
+from labelreview.cli._common import (
+    dataset_options,
+    describe_load,
+    err,
+    handle_errors,
+    load,
+    note,
+    shorten,
+)
+from labelreview.cli._engine import engine_options, progress_bars
 from labelreview.errors import UsageError
 
 LEVEL_CHOICES = ("nominal", "ordinal", "interval", "ratio")
@@ -63,6 +72,7 @@ def _config_defaults(config: Any) -> dict[str, Any]:
     show_default=True,
     help="Output format.",
 )
+@engine_options
 @handle_errors
 def agreement(
     dataset_dir: Path,
@@ -73,6 +83,11 @@ def agreement(
     bootstrap: int | None,
     seed: int | None,
     fmt: str,
+    stream: bool | None,
+    engine: str | None,
+    scheduler: str | None,
+    temp_dir: Path | None,
+    quiet: bool,
 ) -> None:
     """Measure annotator agreement: Krippendorff's alpha, per label and per annotator.
 
@@ -81,31 +96,67 @@ def agreement(
     on the label or on the annotators.
     """
     from labelreview.agreement import AgreementThresholds, agreement_report
+    from labelreview.dataset import configure
+    from labelreview.progress import phase
 
-    dataset = load(dataset_dir, annotations, taxonomy, encoding)
-    if dataset.annotations is None or not len(dataset.annotations):
-        raise UsageError(
-            f"no annotations found in {dataset_dir}; agreement needs who gave which label",
-            hint="Point labelreview.yaml's annotations.path (or --annotations) at the file.",
-        )
-    defaults = _config_defaults(dataset.config)
-    result = agreement_report(
-        dataset.annotations,
-        level=level or defaults["level"],
-        bootstrap=defaults["bootstrap"] if bootstrap is None else bootstrap,
-        seed=defaults["seed"] if seed is None else seed,
-        thresholds=AgreementThresholds(
+    config = configure(dataset_dir, annotations=annotations, taxonomy=taxonomy, encoding=encoding)
+    defaults = _config_defaults(config)
+    options: dict[str, Any] = {
+        "level": level or defaults["level"],
+        "bootstrap": defaults["bootstrap"] if bootstrap is None else bootstrap,
+        "seed": defaults["seed"] if seed is None else seed,
+        "thresholds": AgreementThresholds(
             reliable=float(defaults["reliable"]), tentative=float(defaults["tentative"])
         ),
-        min_items=int(defaults["min_items"]),
-        min_pair_items=int(defaults["min_pair_items"]),
-    )
+        "min_items": int(defaults["min_items"]),
+        "min_pair_items": int(defaults["min_pair_items"]),
+    }
+    chosen_engine = engine or config.engine.name
+    with progress_bars(quiet) as progress:
+        if chosen_engine == "dask":
+            from labelreview.distributed import dask_agreement
+
+            result, report = dask_agreement(
+                config,
+                scheduler=scheduler or config.engine.scheduler,
+                progress=progress,
+                **options,
+            )
+            err(describe_load(report))
+        elif _streams(config, stream):
+            from labelreview.agreement import stream_agreement
+            from labelreview.engine import annotation_stream
+
+            result, report = stream_agreement(
+                annotation_stream(config),
+                progress=progress,
+                temp_dir=temp_dir or config.engine.temp_dir,
+                **options,
+            )
+            err(describe_load(report))
+        else:
+            with phase(progress, "reading the dataset"):
+                dataset = load(dataset_dir, annotations, taxonomy, encoding)
+            if dataset.annotations is None or not len(dataset.annotations):
+                raise UsageError(
+                    f"no annotations found in {dataset_dir}; agreement needs who gave which label",
+                    hint="Point labelreview.yaml's annotations.path (or --annotations) at the "
+                    "file.",
+                )
+            with phase(progress, "computing agreement"):
+                result = agreement_report(dataset.annotations, **options)
     for line in result.notes:
         note(f"note: {line}")
     if fmt == "json":
         click.echo(json.dumps(result.to_dict(), indent=2, allow_nan=False))
     else:
         click.echo(agreement_table(result.to_dict()))
+
+
+def _streams(config: Any, requested: bool | None) -> bool:
+    from labelreview.engine import should_stream
+
+    return should_stream(config, requested)
 
 
 def _fmt(value: float | None, digits: int = 3) -> str:

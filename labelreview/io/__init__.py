@@ -16,16 +16,21 @@ from labelreview.io._annotations import (
 )
 from labelreview.io._common import MAX_FIELD_CHARS
 from labelreview.io._items import load_items, load_items_with_context
+from labelreview.io._stream import STREAM_FORMATS, AnnotationStream, TableStream, fold_items
 from labelreview.io._taxonomy import TAXONOMY_FORMATS, load_taxonomy
 
 __all__ = [
     "ANNOTATION_FORMATS",
+    "AnnotationStream",
     "LAYOUTS",
     "MAX_FIELD_CHARS",
+    "STREAM_FORMATS",
     "TAXONOMY_FORMATS",
+    "TableStream",
     "DuplicateRowsWarning",
     "LoadWarning",
     "detect_format",
+    "fold_items",
     "load_annotations",
     "load_items",
     "load_items_with_context",

@@ -17,6 +17,7 @@ import json
 import re
 import warnings
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -564,27 +565,88 @@ def load_annotations(
             frame, chosen = _long_frame(path, table, columns)
             report_format = resolved
 
+    frame, counts = clean_rows(
+        frame,
+        path=path,
+        wide=layout == "wide" and resolved != "coco",
+        chosen=chosen,
+        locate=locate,
+        separator=multi_label_separator,
+    )
+    notes.extend(counts.notes)
+    frame, duplicate_count = drop_duplicates(frame)
+    if duplicate_count and resolved != "coco":
+        warn_duplicates(path, duplicate_count)
+    if counts.split_cells:
+        notes.append(f"{counts.split_cells} multi-label cell(s) split into one row per label")
+    out = as_annotation_frame(frame)
+    empty_count = counts.empty_labels
+    report = LoadReport(
+        path=str(path),
+        format=report_format,
+        rows_read=rows_read,
+        duplicates_dropped=duplicate_count,
+        empty_labels_dropped=empty_count,
+        column_map=dict(chosen),
+        notes=tuple(notes),
+    )
+    return out, report
+
+
+# -- the steps every reader shares (whole files here, batches in io._stream) --------------------
+
+
+@dataclass
+class CleanCounts:
+    """What :func:`clean_rows` changed."""
+
+    split_cells: int = 0
+    empty_labels: int = 0
+    notes: list[str] = field(default_factory=list)
+
+
+def clean_rows(
+    frame: pd.DataFrame,
+    *,
+    path: Path,
+    wide: bool,
+    chosen: Mapping[str, str],
+    locate: Any,
+    separator: str | None,
+) -> tuple[pd.DataFrame, CleanCounts]:
+    """Split multi-label cells, strip, drop empty labels, refuse rows without item or annotator.
+
+    ``frame`` has ``item``, ``annotator``, ``label`` and ``_row`` (the row's position in the
+    file, for ``locate``). Works row by row, so a file read in batches gives the same rows.
+
+    Raises:
+        LoadError: A label too long to be one, or a row without item (or annotator), with its
+            line where ``locate`` knows it.
+    """
+    counts = CleanCounts()
     labels_text = frame["label"]
     if labels_text.dtype != object or not bool(labels_text.map(_is_listlike).any()):
         text = as_text(labels_text)
-        if layout == "wide" and resolved != "coco":
+        if wide:
             for column, group in frame.assign(label=text).groupby("annotator", sort=False):
                 check_long_fields(path, group["label"], group["_row"], str(column), locate)
         else:
             check_long_fields(path, text, frame["_row"], chosen.get("label", "label"), locate)
 
-    frame, split_cells = _split_labels(frame, multi_label_separator)
+    frame, counts.split_cells = _split_labels(frame, separator)
     frame["label"] = frame["label"].astype(str).str.strip()
     empty = frame["label"] == ""
-    empty_count = int(empty.sum())
-    if empty_count:
+    counts.empty_labels = int(empty.sum())
+    if counts.empty_labels:
         frame = frame[~empty]
-        if layout == "wide" and resolved != "coco":
-            notes.append(f"{empty_count} blank cell(s) skipped (no label from that annotator)")
+        if wide:
+            counts.notes.append(
+                f"{counts.empty_labels} blank cell(s) skipped (no label from that annotator)"
+            )
     frame["item"] = frame["item"].str.strip()
     frame["annotator"] = frame["annotator"].str.strip()
     for role in ("item", "annotator"):
-        if layout == "wide" and role == "annotator":
+        if wide and role == "annotator":
             continue
         blank = frame[role] == ""
         if bool(blank.any()):
@@ -597,32 +659,33 @@ def load_annotations(
                 line=locate(row),
                 column=chosen.get(role),
             )
+    return frame, counts
 
+
+def drop_duplicates(frame: pd.DataFrame) -> tuple[pd.DataFrame, int]:
+    """Drop repeated (item, annotator, label) rows, keeping the first; return how many went.
+
+    A file read in batches must hand over all rows of an item together for the count to match.
+    """
     duplicated = frame.duplicated(subset=list(ANNOTATION_COLUMNS))
-    duplicate_count = int(duplicated.sum())
-    if duplicate_count:
-        frame = frame[~duplicated]
-        if resolved != "coco":
-            warnings.warn(
-                DuplicateRowsWarning(
-                    f"{path}: dropped {duplicate_count} duplicate (item, annotator, label) "
-                    f"row(s); each is counted once"
-                ),
-                stacklevel=2,
-            )
-    if split_cells:
-        notes.append(f"{split_cells} multi-label cell(s) split into one row per label")
+    count = int(duplicated.sum())
+    return (frame[~duplicated] if count else frame), count
+
+
+def warn_duplicates(path: Path, count: int) -> None:
+    warnings.warn(
+        DuplicateRowsWarning(
+            f"{path}: dropped {count} duplicate (item, annotator, label) "
+            f"row(s); each is counted once"
+        ),
+        stacklevel=3,
+    )
+
+
+def as_annotation_frame(frame: pd.DataFrame) -> pd.DataFrame:
+    """The three annotation columns as strings, index reset."""
     out = frame.loc[:, list(ANNOTATION_COLUMNS)].reset_index(drop=True)
     for name in ANNOTATION_COLUMNS:
         if not isinstance(out[name].dtype, pd.StringDtype):
             out[name] = out[name].astype(str)
-    report = LoadReport(
-        path=str(path),
-        format=report_format,
-        rows_read=rows_read,
-        duplicates_dropped=duplicate_count,
-        empty_labels_dropped=empty_count,
-        column_map=dict(chosen),
-        notes=tuple(notes),
-    )
-    return out, report
+    return out

@@ -187,6 +187,30 @@ def test_pairwise_cohen_matches_scikit_learn_on_shared_items():
             assert ours == pytest.approx(expected, abs=1e-6)
 
 
+def test_pairwise_cohen_without_dense_matrices_matches_scikit_learn(monkeypatch):
+    # Vocabularies of tens of thousands of labels take the path that builds no V x V
+    # confusion matrix; forced here with a tiny budget and checked against scikit-learn's
+    # cohen_kappa_score (reference library), unweighted and weighted.
+    from labelreview.agreement import _kappa
+
+    monkeypatch.setattr(_kappa, "_DENSE_BUDGET", 1)
+    rng = np.random.default_rng(5)
+    matrix = random_matrix(rng, 4, 200, 6, 0.3)
+    report = agreement_report(matrix, level="ordinal", bootstrap=0, min_pair_items=10)
+    assert len(report.pairwise_cohen) == 6
+    categories = sorted({float(x) for x in matrix[~np.isnan(matrix)]})
+    for pair in report.pairwise_cohen:
+        a, b = matrix[int(pair.first)], matrix[int(pair.second)]
+        both = ~np.isnan(a) & ~np.isnan(b)
+        for weights, ours in [
+            (None, pair.kappa),
+            ("linear", pair.kappa_linear),
+            ("quadratic", pair.kappa_quadratic),
+        ]:
+            expected = cohen_kappa_score(a[both], b[both], weights=weights, labels=categories)
+            assert ours == pytest.approx(expected, abs=1e-6)  # the report rounds to 6 places
+
+
 def test_alpha_matches_nltk_nominal():
     rng = np.random.default_rng(8)
     matrix = random_matrix(rng, 5, 60, 3, 0.3)

@@ -99,7 +99,7 @@ def test_dataclasses_are_frozen(tmp_path: Path) -> None:
             "version: 1\nannotation:\n  path: a.csv\n",
             r"labelreview\.yaml line 2, column 1: unknown key 'annotation'; known keys here: "
             r"version, name, subjects, annotations, taxonomy, items, lexicons, scan, agreement, "
-            r"decisions, compare, signals, queue, curator\. "
+            r"decisions, compare, signals, queue, engine, curator\. "
             r"Did you mean 'annotations'\?",
         ),
         (
