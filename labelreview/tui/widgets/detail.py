@@ -181,8 +181,10 @@ class DetailPane(ScrollView, can_focus=True):
         Binding("pagedown", "page_down", "page down", show=False),
     ]
 
+    # A stable gutter: the text is wrapped to the content width before Textual decides whether
+    # a scrollbar is needed; a scrollbar appearing later would leave the lines wrapped too wide.
     DEFAULT_CSS = """
-    DetailPane { overflow-x: hidden; overflow-y: auto; }
+    DetailPane { overflow-x: hidden; overflow-y: auto; scrollbar-gutter: stable; }
     """
 
     def __init__(self, *, id: str | None = None) -> None:  # noqa: A002 - Textual's name
