@@ -103,6 +103,7 @@ class ReviewSession:
     _signals: DataSignals | None = field(default=None, init=False, repr=False)
     _queue: Queue | None = field(default=None, init=False, repr=False)
     _flags: list[Flag] | None = field(default=None, init=False, repr=False)
+    _preliminary: dict[str, Flag] | None = field(default=None, init=False, repr=False)
     _by_label: dict[str, Flag] | None = field(default=None, init=False, repr=False)
     _name_scanner: Scanner | None = field(default=None, init=False, repr=False)
     _labels: frozenset[str] | None = field(default=None, init=False, repr=False)
@@ -206,8 +207,33 @@ class ReviewSession:
         self._flags = list(value)
         self._by_label = None
 
+    @property
+    def signals_ready(self) -> bool:
+        """The data signals and the full queue have been computed (:attr:`flags` is cheap)."""
+        return self._flags is not None
+
+    def preliminary_flags(self) -> list[Flag]:
+        """The queue from the lexicon scan alone, before the data signals are computed.
+
+        The same ranking rule with every data signal absent (contested, disparity and skew
+        parts 0). The review app shows it at once and swaps in :attr:`flags` when the signals
+        arrive, so a large dataset is browsable seconds earlier. Until then :meth:`flag` (and
+        so each decision's snapshot) uses these entries: a decision records what the curator
+        was shown.
+        """
+        entries = build_queue(
+            self.scanned.result, DataSignals(settings=self.config.signals), self.config.queue
+        ).entries
+        self._preliminary = {f.label: f for f in entries}
+        return list(entries)
+
     def flag(self, label: str) -> Flag | None:
-        """The entry for ``label`` in :attr:`flags`, or None when nothing flags it."""
+        """The entry for ``label`` in :attr:`flags`, or None when nothing flags it.
+
+        While only :meth:`preliminary_flags` has been built, the preliminary entry.
+        """
+        if self._flags is None and self._preliminary is not None:
+            return self._preliminary.get(label)
         if self._by_label is None:
             self._by_label = {f.label: f for f in self.flags}
         return self._by_label.get(label)

@@ -63,6 +63,10 @@ class SearchBox(Input):
 class ReviewApp(App[int]):
     """``labelreview review``: accept, rename or retire each flagged label, with a reason."""
 
+    PRELIMINARY_ABOVE = 5_000
+    """With at least this many lexicon findings the app first shows the queue as the lexicons
+    rank it and swaps in the full queue when the data signals are computed."""
+
     CSS_PATH = Path(__file__).with_name("review.tcss")  # absolute: subclasses live elsewhere
     TITLE = "labelreview review"
     ENABLE_COMMAND_PALETTE = True
@@ -108,6 +112,8 @@ class ReviewApp(App[int]):
         self.agreement_note: str | None = None
         self.measured = False
         self.loaded = False
+        self.ranking = False
+        """The queue shown is the lexicons' ranking; the data signals are still computing."""
         self.failure: LabelReviewError | None = None
         """Why the app could not open the dataset (the CLI reports it after the app exits)."""
         self.failure_trace: str | None = None
@@ -175,8 +181,17 @@ class ReviewApp(App[int]):
             if not self.read_only:
                 self._held.enter_context(session.hold())
             session.state()
-            step(4, f"building the queue of {len(session.flags):,} flagged labels")
-            rows = queue_rows(session)
+            if (
+                session.signals_ready
+                or len(session.scanned.result.findings) < self.PRELIMINARY_ABOVE
+            ):
+                step(4, f"building the queue of {len(session.flags):,} flagged labels")
+                rows = queue_rows(session)
+            else:
+                # A large dataset: show the queue the lexicons rank at once; the data signals
+                # (seconds at tens of thousands of labels) follow from the measuring worker.
+                step(4, "ranking the lexicon findings")
+                rows = queue_rows(session, session.preliminary_flags())
         except LogLockedError as exc:
             self.call_from_thread(self._locked, session, exc)
             return
@@ -195,6 +210,9 @@ class ReviewApp(App[int]):
         try:
             from labelreview.evidence import gather_evidence, label_agreement
 
+            if not session.signals_ready:
+                session.flags  # noqa: B018 - computes the data signals and the full queue
+                self.call_from_thread(self._queue_ready, queue_rows(session))
             session.fingerprint()  # hashes the input files once; every decision records it
             # The review queue's data signals ran the agreement report already; reuse it.
             computed = session.signals().agreement
@@ -216,6 +234,7 @@ class ReviewApp(App[int]):
 
     def _loaded(self, session: ReviewSession, rows: list[QueueRow]) -> None:
         self.session = session
+        self.ranking = not session.signals_ready
         self.rows = rows
         self.by_label = {row.label: row for row in rows}
         self.reviewed = sum(1 for row in rows if row.status != "open")
@@ -242,6 +261,22 @@ class ReviewApp(App[int]):
         gc.freeze()
         # Measure once the queue is on screen, so the first paint does not wait for it.
         self.call_after_refresh(self._measure, session)
+
+    def _queue_ready(self, rows: list[QueueRow]) -> None:
+        """Swap in the full queue (data signals included), keeping the cursor's label."""
+        assert self.session is not None
+        status = self.session.state().status  # decisions made meanwhile are in the log
+        for row in rows:
+            row.status = status(row.label)
+        current = self.current
+        self.rows = rows
+        self.by_label = {row.label: row for row in rows}
+        self.reviewed = sum(1 for row in rows if row.status != "open")
+        self.ranking = False
+        keep = self.by_label.get(current.label) if current is not None else None
+        self._refilter(keep=keep)
+        self._update_topbar()
+        self._show_detail(self.queue.current)
 
     def _agreement_ready(self, by_label: dict[str, LabelAgreement], note: str | None) -> None:
         attach_agreement(self.rows, by_label)
@@ -322,6 +357,7 @@ class ReviewApp(App[int]):
             return
         name = session.config.name or session.dataset.root.resolve().name
         log_state = self.read_only_reason or "log held"
+        ranking = ("  ranking by data signals…", "$warning") if self.ranking else ""
         where.update(
             Content.assemble(
                 ("labelreview", "bold"),
@@ -333,6 +369,7 @@ class ReviewApp(App[int]):
                 session.log.path.name,
                 " ",
                 (f"({log_state})", "$warning" if self.read_only else "$text-muted"),
+                ranking,
             )
         )
         done, total = self.reviewed, len(self.rows)

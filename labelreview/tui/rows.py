@@ -12,7 +12,7 @@ Nothing here imports Textual; the widgets read these rows.
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
 from labelreview.model import SEVERITY_RANK
@@ -152,14 +152,14 @@ def flag_score(flag: Flag) -> float | None:
     return float(score) if isinstance(score, (int, float)) else None
 
 
-def queue_rows(session: ReviewSession) -> list[QueueRow]:
-    """Every flag of the session as a row, in the session's order, with its logged status."""
+def queue_rows(session: ReviewSession, flags: Sequence[Flag] | None = None) -> list[QueueRow]:
+    """Every flag of the session (or ``flags``: the preliminary queue) as a row, in order,
+    with its logged status."""
     titles = {cid: category.title for cid, category in session.scanned.lexicon.categories.items()}
     state = session.state()
     status = state.status
-    return [
-        QueueRow(rank, flag, titles, status(flag.label)) for rank, flag in enumerate(session.flags)
-    ]
+    entries = session.flags if flags is None else flags
+    return [QueueRow(rank, flag, titles, status(flag.label)) for rank, flag in enumerate(entries)]
 
 
 def attach_agreement(rows: Iterable[QueueRow], by_label: Mapping[str, LabelAgreement]) -> None:

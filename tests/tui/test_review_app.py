@@ -533,3 +533,55 @@ async def test_the_readme_walkthrough(session, log_path):
     ]
     assert entries[1]["new_label"] == CLEANER and entries[1]["merge"] is True
     assert entries[2]["reason"] == "decided by mistake; reopening for another look"
+
+
+async def test_a_large_queue_is_shown_before_the_data_signals_arrive(
+    session, log_path, monkeypatch
+):
+    # Above ReviewApp.PRELIMINARY_ABOVE findings the app shows the lexicons' ranking first and
+    # swaps in the full queue when the data signals are computed. Forced here on the sample
+    # set, with the signals held back until the test lets them go.
+    import threading
+
+    monkeypatch.setattr(ReviewApp, "PRELIMINARY_ABOVE", 0)
+    release = threading.Event()
+    compute = type(session).signals
+
+    def held_signals(self):  # noqa: ANN001, ANN202
+        assert release.wait(30), "the test never released the signals"
+        return compute(self)
+
+    monkeypatch.setattr(type(session), "signals", held_signals)
+    app = ReviewApp(session=session)
+    async with app.run_test(size=SIZE) as pilot:
+        for _ in range(100):
+            await pilot.pause(0.05)
+            if app.loaded:
+                break
+        assert app.loaded and app.ranking
+        assert "ranking by data signals" in text_of(app, "#where")
+        # Only the lexicon findings so far: the label flagged only by the data is not listed.
+        assert "objects/boats/trawler" not in app.by_label
+        assert len(app.rows) == 27
+
+        # A decision made now records the entry the curator was shown.
+        await go_to(app, pilot, CLEANING_LADY)
+        await pilot.press("a")
+        set_reason(app, "the archive keeps the source card's own words")
+        await pilot.press("enter")
+        first = log_entries(log_path)[0]
+        assert (first["label"], first["action"]) == (CLEANING_LADY, "accept")
+        assert first["finding"]["score_parts"]["contested"] == 0.0
+
+        release.set()
+        await opened(app, pilot)
+        for _ in range(100):
+            if not app.ranking:
+                break
+            await pilot.pause(0.05)
+        assert not app.ranking and "ranking by data signals" not in text_of(app, "#where")
+        assert len(app.rows) == 28 and "objects/boats/trawler" in app.by_label
+        # The decision made meanwhile is still shown, and counted.
+        assert app.by_label[CLEANING_LADY].status == "accepted"
+        assert "reviewed 1 of 28" in text_of(app, "#progress-text")
+        assert [r.label for r in app.rows] == [f.label for f in session.flags]
