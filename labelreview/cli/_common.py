@@ -22,6 +22,7 @@ from labelreview.errors import LabelReviewError
 if TYPE_CHECKING:
     from labelreview.dataset import Dataset
     from labelreview.model import LoadReport
+    from labelreview.review import ReviewSession
 
 F = TypeVar("F", bound=Callable[..., Any])
 
@@ -128,6 +129,50 @@ def load(
         for report in dataset.reports:
             err(describe_load(report))
     return dataset
+
+
+def quiet_option(func: F) -> F:
+    """``--quiet``: no progress display on stderr (it is off anyway when stderr is no terminal)."""
+    return click.option(
+        "--quiet",
+        "-q",
+        is_flag=True,
+        help="No progress display (it is also off when stderr is not a terminal).",
+    )(func)
+
+
+def open_session(
+    dataset_dir: Path,
+    annotations: Path | None = None,
+    taxonomy: Path | None = None,
+    encoding: str | None = None,
+    *,
+    curator: str | None = None,
+    quiet: bool = False,
+    describe: bool = True,
+) -> ReviewSession:
+    """Load and scan a dataset folder and build its review queue, with progress on stderr.
+
+    The one way the data commands open a dataset: reading, the lexicon scan and the data
+    signals each show a step on stderr when it is a terminal (never with ``quiet``); the scan's
+    notes (subjects defaulted, lexicon warnings) follow as ``note:`` lines, and the queue's own
+    notes are the caller's to print (``session.queue().notes``). ``describe`` prints what each
+    loader read.
+    """
+    from labelreview.cli._engine import progress_bars
+    from labelreview.progress import phase
+    from labelreview.review import ReviewSession
+
+    with progress_bars(quiet) as progress:
+        with phase(progress, f"reading {dataset_dir}"):
+            dataset = load(dataset_dir, annotations, taxonomy, encoding, quiet=not describe)
+        with phase(progress, "scanning the labels against the lexicons"):
+            session = ReviewSession.from_dataset(dataset, curator=curator)
+        with phase(progress, "computing the data signals and the review queue"):
+            session.queue()
+    for line in session.scanned.notes:
+        note(line if line.startswith("warning:") else f"note: {line}")
+    return session
 
 
 def describe_load(report: LoadReport) -> str:

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from labelreview.cli._common import dataset_options, handle_errors, load, note
+from labelreview.cli._common import dataset_options, handle_errors, note, open_session, quiet_option
 
 
 @click.command("apply")
@@ -35,6 +35,7 @@ from labelreview.cli._common import dataset_options, handle_errors, load, note
     help="Replace the output of an earlier apply in --out (only files it wrote, unchanged).",
 )
 @click.option("--dry-run", is_flag=True, help="Show what would change; write nothing.")
+@quiet_option
 @handle_errors
 def apply(
     dataset_dir: Path,
@@ -46,6 +47,7 @@ def apply(
     allow_unresolved: bool,
     force: bool,
     dry_run: bool,
+    quiet: bool,
 ) -> None:
     """Apply the decisions in force to a copy of DATASET_DIR (default: the current folder).
 
@@ -59,12 +61,8 @@ def apply(
     that does not verify, decisions that loop, or an output folder holding other files.
     """
     from labelreview.apply import apply_decisions, plan_apply
-    from labelreview.review import ReviewSession
 
-    dataset = load(dataset_dir, annotations, taxonomy, encoding)
-    session = ReviewSession.from_dataset(dataset)
-    for line in session.scanned.notes:
-        note(line if line.startswith("warning:") else f"note: {line}")
+    session = open_session(dataset_dir, annotations, taxonomy, encoding, quiet=quiet)
     if dry_run:
         plan = plan_apply(session, fail_on=fail_on, allow_unresolved=allow_unresolved)
         changed = [m for m in plan.mapping.values() if m.changed]

@@ -9,29 +9,17 @@ from typing import TYPE_CHECKING
 
 import click
 
-from labelreview.cli._common import EXIT_FOUND, dataset_options, handle_errors, load, note
+from labelreview.cli._common import (
+    EXIT_FOUND,
+    dataset_options,
+    handle_errors,
+    open_session,
+    quiet_option,
+)
 from labelreview.cli.scan import cautions_text
 
 if TYPE_CHECKING:
     from labelreview.gate import GateResult
-    from labelreview.review import ReviewSession
-
-
-def open_session(
-    dataset_dir: Path,
-    annotations: Path | None = None,
-    taxonomy: Path | None = None,
-    encoding: str | None = None,
-    curator: str | None = None,
-) -> ReviewSession:
-    """Load, scan and attach the log of a dataset folder, passing the core's notes to stderr."""
-    from labelreview.review import ReviewSession
-
-    dataset = load(dataset_dir, annotations, taxonomy, encoding, quiet=True)
-    session = ReviewSession.from_dataset(dataset, curator=curator)
-    for line in session.scanned.notes:
-        note(line if line.startswith("warning:") else f"note: {line}")
-    return session
 
 
 @click.command("check")
@@ -59,6 +47,7 @@ def open_session(
     is_flag=True,
     help="Fail unless the latest sign-off still covers the log, data and lexicon set.",
 )
+@quiet_option
 @handle_errors
 def check(
     dataset_dir: Path,
@@ -69,6 +58,7 @@ def check(
     fmt: str,
     allow_lexicon_change: bool,
     require_signoff: bool,
+    quiet: bool,
 ) -> None:
     """The release gate for DATASET_DIR (default: the current folder).
 
@@ -79,7 +69,9 @@ def check(
     """
     from labelreview.gate import check_gate
 
-    session = open_session(dataset_dir, annotations, taxonomy, encoding)
+    session = open_session(
+        dataset_dir, annotations, taxonomy, encoding, quiet=quiet, describe=False
+    )
     result = check_gate(
         session,
         fail_on=fail_on,

@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 
 import click
 
-from labelreview.cli._common import EXIT_FOUND, handle_errors, note
+from labelreview.cli._common import EXIT_FOUND, handle_errors, note, open_session, quiet_option
 from labelreview.cli.scan import cautions_text
 
 if TYPE_CHECKING:
@@ -35,9 +35,15 @@ _dir = click.Path(file_okay=False, path_type=Path)
     show_default=True,
     help="Output format.",
 )
+@quiet_option
 @handle_errors
 def compare(
-    old_dir: Path, new_dir: Path, fail_on_new: bool, agreement_drop: float | None, fmt: str
+    old_dir: Path,
+    new_dir: Path,
+    fail_on_new: bool,
+    agreement_drop: float | None,
+    fmt: str,
+    quiet: bool,
 ) -> None:
     """Compare dataset version OLD_DIR with NEW_DIR.
 
@@ -46,11 +52,10 @@ def compare(
     by more than compare.agreement_drop. Exit code 0, or 1 with --fail-on-new when anything
     needs review; 2 on bad input.
     """
-    from labelreview.cli.check import open_session
     from labelreview.compare import compare_versions
 
-    old = open_session(old_dir)
-    new = open_session(new_dir)
+    old = open_session(old_dir, quiet=quiet, describe=False)
+    new = open_session(new_dir, quiet=quiet, describe=False)
     result = compare_versions(old, new, agreement_drop=agreement_drop)
     for line in result.notes:
         note(f"note: {line}")

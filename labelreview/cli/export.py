@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from labelreview.cli._common import dataset_options, handle_errors, load, note
+from labelreview.cli._common import dataset_options, handle_errors, note, open_session, quiet_option
 
 
 @click.command("export")
@@ -25,6 +25,7 @@ from labelreview.cli._common import dataset_options, handle_errors, load, note
     help="Gate level for the 'at gate' marks (default: the config's decisions.fail_on).",
 )
 @click.option("--no-agreement", is_flag=True, help="Leave out the annotator agreement summary.")
+@quiet_option
 @handle_errors
 def export(
     dataset_dir: Path,
@@ -35,6 +36,7 @@ def export(
     force: bool,
     fail_on: str | None,
     no_agreement: bool,
+    quiet: bool,
 ) -> None:
     """Write the audit trail of DATASET_DIR (default: the current folder) to a file.
 
@@ -50,13 +52,10 @@ def export(
     self-contained.
     """
     from labelreview.export import agreement_summary, export_report, format_for
-    from labelreview.review import ReviewSession
 
     fmt = format_for(target)  # refuse a bad ending before any work
-    dataset = load(dataset_dir, annotations, taxonomy, encoding)
-    session = ReviewSession.from_dataset(dataset)
-    for line in session.scanned.notes:
-        note(line if line.startswith("warning:") else f"note: {line}")
+    session = open_session(dataset_dir, annotations, taxonomy, encoding, quiet=quiet)
+    dataset = session.dataset
     agreement = None
     if not no_agreement:
         agreement = agreement_summary(

@@ -15,7 +15,14 @@ from typing import TYPE_CHECKING
 
 import click
 
-from labelreview.cli._common import dataset_options, handle_errors, load, note, shorten
+from labelreview.cli._common import (
+    dataset_options,
+    handle_errors,
+    note,
+    open_session,
+    quiet_option,
+    shorten,
+)
 from labelreview.cli.scan import cautions_text
 
 if TYPE_CHECKING:
@@ -45,6 +52,7 @@ ANNOTATOR_ROWS = 10
     help="Show only the N most urgent entries (the sections after them are complete).",
 )
 @click.option("--open", "open_only", is_flag=True, help="Leave out labels already decided.")
+@quiet_option
 @handle_errors
 def queue(
     dataset_dir: Path,
@@ -54,6 +62,7 @@ def queue(
     fmt: str,
     top: int | None,
     open_only: bool,
+    quiet: bool,
 ) -> None:
     """The ranked review queue of DATASET_DIR (default: the current folder).
 
@@ -63,12 +72,7 @@ def queue(
     in plain words with their numbers. Group disparity needs attribute columns marked as
     consented and self-reported in labelreview.yaml; labelreview never infers them.
     """
-    from labelreview.review import ReviewSession
-
-    dataset = load(dataset_dir, annotations, taxonomy, encoding)
-    session = ReviewSession.from_dataset(dataset)
-    for line in session.scanned.notes:
-        note(line if line.startswith("warning:") else f"note: {line}")
+    session = open_session(dataset_dir, annotations, taxonomy, encoding, quiet=quiet)
     built = session.queue()
     for line in built.notes:
         note(f"note: {line}")

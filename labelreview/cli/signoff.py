@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from labelreview.cli._common import dataset_options, handle_errors
+from labelreview.cli._common import dataset_options, handle_errors, open_session, quiet_option
 
 
 @click.command("signoff")
@@ -22,6 +22,7 @@ from labelreview.cli._common import dataset_options, handle_errors
     type=click.Choice(["low", "medium", "high"]),
     help="Gate level signed for (default: decisions.fail_on).",
 )
+@quiet_option
 @handle_errors
 def signoff(
     dataset_dir: Path,
@@ -31,6 +32,7 @@ def signoff(
     approver: str,
     statement: str,
     fail_on: str | None,
+    quiet: bool,
 ) -> None:
     """Sign off DATASET_DIR (default: the current folder) for release.
 
@@ -40,10 +42,11 @@ def signoff(
     when the log does not verify, with a short statement, and, under the four-eyes rule
     (decisions.four_eyes), for an approver who made a high-severity decision in force.
     """
-    from labelreview.cli.check import open_session
     from labelreview.gate import sign_off
 
-    session = open_session(dataset_dir, annotations, taxonomy, encoding)
+    session = open_session(
+        dataset_dir, annotations, taxonomy, encoding, quiet=quiet, describe=False
+    )
     entry = sign_off(session, approver=approver, statement=statement, fail_on=fail_on)
     click.echo(
         f"signed off: seq {entry.seq} hash {entry.hash} by {entry.actor} at {entry.time} "
