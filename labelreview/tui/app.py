@@ -114,6 +114,7 @@ class ReviewApp(App[int]):
         self.loaded = False
         self.ranking = False
         """The queue shown is the lexicons' ranking; the data signals are still computing."""
+        self._first_shown: str | None = None
         self.failure: LabelReviewError | None = None
         """Why the app could not open the dataset (the CLI reports it after the app exits)."""
         self.failure_trace: str | None = None
@@ -246,6 +247,7 @@ class ReviewApp(App[int]):
             else "No label matches these filters."
         )
         first_open = next((row for row in rows if row.status == "open"), None)
+        self._first_shown = first_open.label if first_open is not None else None
         queue.set_rows(rows, keep=first_open)
         self.query_one("#switcher", ContentSwitcher).current = "main"
         queue.focus()
@@ -274,6 +276,9 @@ class ReviewApp(App[int]):
         self.reviewed = sum(1 for row in rows if row.status != "open")
         self.ranking = False
         keep = self.by_label.get(current.label) if current is not None else None
+        if current is not None and current.label == self._first_shown:
+            # The curator has not moved yet: start at the top of the full ranking instead.
+            keep = next((row for row in rows if row.status == "open"), keep)
         self._refilter(keep=keep)
         self._update_topbar()
         self._show_detail(self.queue.current)

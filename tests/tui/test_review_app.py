@@ -585,3 +585,17 @@ async def test_a_large_queue_is_shown_before_the_data_signals_arrive(
         assert app.by_label[CLEANING_LADY].status == "accepted"
         assert "reviewed 1 of 28" in text_of(app, "#progress-text")
         assert [r.label for r in app.rows] == [f.label for f in session.flags]
+
+
+async def test_the_full_queue_starts_at_its_top_when_the_cursor_was_not_moved(session, monkeypatch):
+    monkeypatch.setattr(ReviewApp, "PRELIMINARY_ABOVE", 0)
+    app = ReviewApp(session=session)
+    async with app.run_test(size=SIZE) as pilot:
+        await opened(app, pilot)
+        for _ in range(100):
+            if not app.ranking:
+                break
+            await pilot.pause(0.05)
+        assert not app.ranking
+        first_open = next(f.label for f in session.flags)  # no decisions: the top entry
+        assert app.current is not None and app.current.label == first_open
