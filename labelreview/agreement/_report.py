@@ -769,12 +769,12 @@ def _annotators(
     judged = np.zeros(n_ann, dtype=np.int64)
     t = sums.tally("judged")
     judged[t.columns[0]] = t.counts
-    parts = _leave_one_out_parts(sums, factory, rank) if leave_out else [None] * n_ann
+    parts: list[Any] = _leave_one_out_parts(sums, factory, rank) if leave_out else [None] * n_ann
     out: list[AnnotatorAgreement] = []
     for a, name in enumerate(sums.annotators):
-        part = parts[a]
-        value = part.alpha if part is not None else None
-        reason = part.reason if part is not None else "not computed (leave_out=False)"
+        without = parts[a]
+        value = without.alpha if without is not None else None
+        reason = without.reason if without is not None else "not computed (leave_out=False)"
         change = value - alpha if value is not None and alpha is not None else None
         n_counted = int(counted[a])
         out.append(
