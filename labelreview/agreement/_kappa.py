@@ -134,7 +134,6 @@ def cohen_from_counts(
     local[chosen] = np.arange(chosen.size)
     same = counts.value1 == counts.value2
     agree = np.bincount(pair_of, weights=np.where(same, weights, 0.0))
-    cell = counts.value1 * v + counts.value2
     kinds: tuple[str | None, ...] = WEIGHTS if weighted else (None,)
     kappa = {w: np.full(chosen.size, np.nan) for w in kinds}
     sel = local[pair_of] >= 0
@@ -145,17 +144,17 @@ def cohen_from_counts(
             kappa[w][:] = _sparse_kappa(
                 pair_of[sel], counts.value1[sel], counts.value2[sel], weights[sel], w
             )[chosen]
-        per_chunk = 0
     else:
+        cell = counts.value1 * v + counts.value2
         per_chunk = max(1, _DENSE_BUDGET // max(v * v, 1))
-    for lo in range(0, chosen.size if per_chunk else 0, per_chunk or 1):
-        hi = min(chosen.size, lo + per_chunk)
-        part = sel & (local[pair_of] >= lo) & (local[pair_of] < hi)
-        conf = np.zeros((hi - lo) * v * v)
-        np.add.at(conf, (local[pair_of[part]] - lo) * v * v + cell[part], weights[part])
-        conf = conf.reshape(hi - lo, v, v)
-        for w in kinds:
-            kappa[w][lo:hi] = kappa_from_confusion(conf, w)
+        for lo in range(0, chosen.size, per_chunk):
+            hi = min(chosen.size, lo + per_chunk)
+            part = sel & (local[pair_of] >= lo) & (local[pair_of] < hi)
+            conf = np.zeros((hi - lo) * v * v)
+            np.add.at(conf, (local[pair_of[part]] - lo) * v * v + cell[part], weights[part])
+            conf = conf.reshape(hi - lo, v, v)
+            for w in kinds:
+                kappa[w][lo:hi] = kappa_from_confusion(conf, w)
     return PairParts(
         first=first[starts][chosen],
         second=second[starts][chosen],
@@ -205,15 +204,16 @@ def _sparse_kappa(
     pos = g_val.astype(np.float64)
     if weights is None:
         # sum_i r_i c_i: the rows and columns of one pair meet on equal values.
-        r_keys = g_pair[~is_c] * (int(g_val.max()) + 1) + g_val[~is_c]
-        c_keys = g_pair[is_c] * (int(g_val.max()) + 1) + g_val[is_c]
+        radix = int(g_val.max()) + 1
+        r_keys = g_pair[~is_c] * radix + g_val[~is_c]
+        c_keys = g_pair[is_c] * radix + g_val[is_c]
         _, ri, ci = np.intersect1d(r_keys, c_keys, assume_unique=True, return_indices=True)
         rc = np.bincount(
             g_pair[~is_c][ri], weights=g_w[~is_c][ri] * g_w[is_c][ci], minlength=n_pairs
         )
         expected_sum = n * n - rc
     elif weights == "quadratic":
-        m = {}
+        m: dict[tuple[str, int], np.ndarray] = {}
         for side, mask in (("r", ~is_c), ("c", is_c)):
             for k in (1, 2):
                 m[side, k] = np.bincount(

@@ -131,6 +131,13 @@ def load(
     return dataset
 
 
+def fail_on_option(help_text: str) -> Callable[[F], F]:
+    """``--fail-on low|medium|high``, the gate level, with each command's own help text."""
+    from labelreview.model import SEVERITIES
+
+    return click.option("--fail-on", type=click.Choice(list(SEVERITIES)), help=help_text)
+
+
 def quiet_option(func: F) -> F:
     """``--quiet``: no progress display on stderr (it is off anyway when stderr is no terminal)."""
     return click.option(

@@ -6,7 +6,14 @@ from pathlib import Path
 
 import click
 
-from labelreview.cli._common import dataset_options, handle_errors, note, open_session, quiet_option
+from labelreview.cli._common import (
+    dataset_options,
+    fail_on_option,
+    handle_errors,
+    note,
+    open_session,
+    quiet_option,
+)
 
 
 @click.command("apply")
@@ -18,11 +25,9 @@ from labelreview.cli._common import dataset_options, handle_errors, note, open_s
     type=click.Path(path_type=Path),
     help="Folder for the revised dataset (new or empty; never the dataset folder).",
 )
-@click.option(
-    "--fail-on",
-    type=click.Choice(["low", "medium", "high"]),
-    help="Refuse while undecided flags at or above this severity remain "
-    "(default: the config's decisions.fail_on).",
+@fail_on_option(
+    "Refuse while undecided flags at or above this severity remain "
+    "(default: the config's decisions.fail_on)."
 )
 @click.option(
     "--allow-unresolved",

@@ -12,6 +12,7 @@ import click
 from labelreview.cli._common import (
     EXIT_FOUND,
     dataset_options,
+    fail_on_option,
     handle_errors,
     open_session,
     quiet_option,
@@ -24,11 +25,7 @@ if TYPE_CHECKING:
 
 @click.command("check")
 @dataset_options
-@click.option(
-    "--fail-on",
-    type=click.Choice(["low", "medium", "high"]),
-    help="Gate level: unresolved flags at or above it fail (default: decisions.fail_on).",
-)
+@fail_on_option("Gate level: unresolved flags at or above it fail (default: decisions.fail_on).")
 @click.option(
     "--format",
     "fmt",

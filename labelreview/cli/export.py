@@ -6,7 +6,14 @@ from pathlib import Path
 
 import click
 
-from labelreview.cli._common import dataset_options, handle_errors, note, open_session, quiet_option
+from labelreview.cli._common import (
+    dataset_options,
+    fail_on_option,
+    handle_errors,
+    note,
+    open_session,
+    quiet_option,
+)
 
 
 @click.command("export")
@@ -19,11 +26,7 @@ from labelreview.cli._common import dataset_options, handle_errors, note, open_s
     help="The file to write; its ending picks the format: .csv, .json, .md or .html.",
 )
 @click.option("--force", is_flag=True, help="Replace the file if it exists.")
-@click.option(
-    "--fail-on",
-    type=click.Choice(["low", "medium", "high"]),
-    help="Gate level for the 'at gate' marks (default: the config's decisions.fail_on).",
-)
+@fail_on_option("Gate level for the 'at gate' marks (default: the config's decisions.fail_on).")
 @click.option("--no-agreement", is_flag=True, help="Leave out the annotator agreement summary.")
 @quiet_option
 @handle_errors

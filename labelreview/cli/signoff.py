@@ -6,7 +6,13 @@ from pathlib import Path
 
 import click
 
-from labelreview.cli._common import dataset_options, handle_errors, open_session, quiet_option
+from labelreview.cli._common import (
+    dataset_options,
+    fail_on_option,
+    handle_errors,
+    open_session,
+    quiet_option,
+)
 
 
 @click.command("signoff")
@@ -17,11 +23,7 @@ from labelreview.cli._common import dataset_options, handle_errors, open_session
     required=True,
     help="What the approver states (at least decisions.min_reason_length characters).",
 )
-@click.option(
-    "--fail-on",
-    type=click.Choice(["low", "medium", "high"]),
-    help="Gate level signed for (default: decisions.fail_on).",
-)
+@fail_on_option("Gate level signed for (default: decisions.fail_on).")
 @quiet_option
 @handle_errors
 def signoff(
