@@ -235,7 +235,8 @@ def _partition_sums(
     part, dropped = drop_duplicates(part)
     if part.empty:
         return None, dropped
-    return sums_of_batch(part.reset_index(drop=True), level, parts, leave_out), dropped
+    # One thread per partition: the cluster already runs partitions side by side.
+    return sums_of_batch(part.reset_index(drop=True), level, parts, leave_out, threads=1), dropped
 
 
 def _add_pair(

@@ -19,6 +19,7 @@ from labelreview.agreement._coding import (
     NEARBY_LIMIT,
     Coded,
     Lookup,
+    count_codes,
     narrow_key,
     run_lengths,
 )
@@ -557,9 +558,67 @@ def label_groups(
     return unit[first], label[first], count
 
 
+_SLOTS = 16
+"""Rows of items at most this far apart are told apart by ``item % _SLOTS`` (see below)."""
+_NEARBY_BINS = 1 << 20
+"""The narrow per-label count uses at most this many bins, or one per row if more."""
+
+
+def _label_sums_nearby(
+    unit: np.ndarray, label: np.ndarray, n_labels: int, sizes: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """Single-label sums of :func:`label_sums` for small items, in narrow integers; else None.
+
+    Rows are sorted by item and every item code below ``sizes.size`` occurs, so two rows fewer
+    than ``_SLOTS`` apart belong to items whose codes differ by less than ``_SLOTS``: the item
+    code modulo ``_SLOTS`` tells them apart. Each row gets the key (item slot, m_u, label) in 16
+    bits when it fits; one comparison per row distance marks the rows whose (item, label) pair
+    occurred earlier (``seen``) and counts the later rows with the same pair (``later``; its sum
+    over a pair's rows is n_uc (n_uc - 1) / 2). One count over (key, later, seen) then gives
+    every sum. The sums are integers, so they equal those of the sorting path exactly.
+
+    Returns:
+        (agree[label, m] = sum of n_uc (n_uc - 1) over items of size m >= 2; marked; items), or
+        None when the items are too large or the key space too wide for this path.
+    """
+    n_units = sizes.size
+    longest = int(sizes.max()) if n_units else 0
+    if n_units == 0 or longest > _SLOTS or not bool((sizes > 0).all()):
+        return None
+    n_m = longest + 1
+    space = _SLOTS * n_m * max(n_labels, 1)
+    if space * 2 * _SLOTS > max(unit.size, _NEARBY_BINS):
+        return None
+    kind = np.int16 if space < 2**15 else np.int32
+    item_key = (np.arange(n_units, dtype=np.int64) % _SLOTS) * n_m + sizes
+    key = item_key.astype(kind)[unit]
+    key *= kind(n_labels)
+    np.add(key, label, out=key, casting="unsafe")
+    seen = np.zeros(key.size, dtype=bool)
+    later = np.zeros(key.size, dtype=np.int8)
+    for d in range(1, longest):
+        same = key[d:] == key[:-d]
+        seen[d:] |= same
+        later[:-d] += same
+    code = key.astype(np.int32)
+    del key
+    code *= np.int32(2 * _SLOTS)
+    later *= 2
+    later += seen
+    code += later
+    counts = count_codes(code, space * 2 * _SLOTS).reshape(_SLOTS, n_m, n_labels, _SLOTS, 2)
+    counts = counts.sum(axis=0)  # (m, label, later, seen)
+    pairs = np.tensordot(counts.sum(axis=3), np.arange(_SLOTS), axes=([2], [0]))  # (m, label)
+    agree = (2 * pairs).T.astype(np.int64)
+    agree[:, :2] = 0
+    marked = counts[2:].sum(axis=(0, 2, 3)).astype(np.int64)
+    n_items = counts[2:, :, :, 0].sum(axis=(0, 2)).astype(np.int64)
+    return agree, marked, n_items
+
+
 def _renumber(per_code: np.ndarray, table: np.ndarray, used: np.ndarray, size: int) -> np.ndarray:
-    """Per-stored-code figures -> per-final-code figures (stored code c becomes table[c])."""
-    out = np.zeros(size, dtype=per_code.dtype)
+    """Per-stored-code figures (rows) -> per-final-code figures (stored code c becomes table[c])."""
+    out = np.zeros((size, *per_code.shape[1:]), dtype=per_code.dtype)
     out[table[used]] = per_code[used]
     return out
 
@@ -596,6 +655,16 @@ def label_sums(coded: Coded) -> LabelSums:
     raw = codes.stored if table is not None else coded.label_code
     n_bins = table.size if table is not None else n_labels
     sizes = m if coded.label_unit is coded.unit else None
+    if sizes is not None:
+        nearby = _label_sums_nearby(coded.unit, raw, n_bins, sizes)
+        if nearby is not None:
+            agree, marked, n_items = nearby
+            if table is not None:
+                used = table >= 0
+                agree = _renumber(agree, table, used, n_labels)
+                marked, n_items = (_renumber(x, table, used, n_labels) for x in (marked, n_items))
+            a_label, a_m = np.nonzero(agree)
+            return LabelSums(a_label, a_m, agree[a_label, a_m], marked, n_items)
     g_unit, g_label, count = label_groups(coded.label_unit, raw, n_bins, sizes)
     m_g = m[g_unit]
     keep = m_g >= 2

@@ -323,12 +323,16 @@ def _runs(starts: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
     return np.repeat(np.arange(starts.size, dtype=np.int64), lengths), lengths
 
 
-def _items_from_text(column: pd.Series) -> _Items:
+class ItemsNotSorted(Exception):
+    """Raised when coding with ``sorted_items`` and the item ids are not in sorted runs."""
+
+
+def _items_from_text(column: pd.Series, sorted_items: bool = False) -> _Items:
     """Item codes for a text column whose equal values are usually adjacent.
 
     When the text never decreases from one row to the next (a file written item by item in
     sorted order), every run of equal values is one whole item and the run number is the code;
-    otherwise the column is hashed as usual.
+    otherwise the column is hashed as usual (``sorted_items``: :class:`ItemsNotSorted` instead).
     """
     n = len(column)
     pa_array = _arrow(column)
@@ -341,24 +345,35 @@ def _items_from_text(column: pd.Series) -> _Items:
             starts = np.concatenate(([0], np.flatnonzero(change) + 1))
             codes, lengths = _runs(starts, n)
             return _Items(codes, starts.size, pa_array, starts, True, lengths)
+    if sorted_items and n > 1 and (pa_array is not None or _descending(column)):
+        raise ItemsNotSorted
     codes, names = _factorize(column)
     grouped = bool(n < 2 or (codes[1:] >= codes[:-1]).all())
     return _Items(codes.astype(np.int64, copy=False), len(names), names, None, grouped)
 
 
-def _items_from_codes(codes: np.ndarray, categories: Any) -> _Items:
+def _descending(column: pd.Series) -> bool:
+    """Whether a numeric item column decreases somewhere (other dtypes: True)."""
+    values = column.to_numpy()
+    if values.dtype.kind not in "iuf":
+        return True
+    return bool((values[1:] < values[:-1]).any())
+
+
+def _items_from_codes(codes: np.ndarray, categories: Any, sorted_items: bool = False) -> _Items:
     """Item codes from stored dictionary codes, numbered exactly as :func:`_items_from_text` would.
 
     Stored codes may follow any category order and skip unused categories; the item codes are
     renumbered by first appearance, which is what factorising the text gives.
+    ``sorted_items``: raise :class:`ItemsNotSorted` unless the stored codes never decrease.
     """
     starts = run_starts(codes)
     run_code = codes[starts]
-    if (
-        run_code.size < 2
-        or bool((run_code[1:] > run_code[:-1]).all())
-        or int(np.bincount(run_code).max()) == 1
-    ):  # every run is a whole item: the run number is the code
+    increasing = run_code.size < 2 or bool((run_code[1:] > run_code[:-1]).all())
+    if sorted_items and not increasing:
+        raise ItemsNotSorted
+    if increasing or int(np.bincount(run_code).max()) == 1:
+        # every run is a whole item: the run number is the code
         unit, lengths = _runs(starts, codes.size)
         return _Items(unit, starts.size, categories, run_code, True, lengths)
     order = np.argsort(run_code, kind="stable")
@@ -437,9 +452,11 @@ def _numeric(names: list[str], raw: np.ndarray, level: str) -> np.ndarray:
     return numbers
 
 
-def _encode_items(column: pd.Series) -> _Items:
+def _encode_items(column: pd.Series, sorted_items: bool = False) -> _Items:
     stored = _stored_codes(column)
-    return _items_from_text(column) if stored is None else _items_from_codes(*stored)
+    if stored is None:
+        return _items_from_text(column, sorted_items)
+    return _items_from_codes(*stored, sorted_items)
 
 
 def _encode_values(column: pd.Series) -> _Values:
@@ -448,17 +465,23 @@ def _encode_values(column: pd.Series) -> _Values:
 
 
 def _encode_columns(
-    items: pd.Series, annotators: pd.Series, labels: pd.Series
+    items: pd.Series,
+    annotators: pd.Series,
+    labels: pd.Series,
+    sorted_items: bool = False,
+    threads: bool = True,
 ) -> tuple[_Items, _Values, _Values]:
     """Code the three columns; text columns of large frames in threads (Arrow releases the GIL).
 
-    Categorical and dictionary columns need no hashing, so they are coded in this thread.
+    Categorical and dictionary columns need no hashing, so they are coded in this thread. The
+    item column goes first, so a ``sorted_items`` refusal comes before any hashing.
     """
     text = [not isinstance(c.dtype, pd.CategoricalDtype) for c in (items, annotators, labels)]
-    if len(items) < 200_000 or sum(text) < 2:
-        return _encode_items(items), _encode_values(annotators), _encode_values(labels)
+    if not threads or len(items) < 200_000 or sum(text) < 2:
+        coded_items = _encode_items(items, sorted_items)
+        return coded_items, _encode_values(annotators), _encode_values(labels)
     with ThreadPoolExecutor(max_workers=3) as pool:
-        first = pool.submit(_encode_items, items)
+        first = pool.submit(_encode_items, items, sorted_items)
         second = pool.submit(_encode_values, annotators)
         third = pool.submit(_encode_values, labels)
         return first.result(), second.result(), third.result()
@@ -484,6 +507,11 @@ def code_annotations(data: Any, level: str = "nominal") -> Coded:
             multi-label data at a level other than nominal.
     """
     check_level(level)
+    return code_frame(long_frame(data), level)
+
+
+def long_frame(data: Any) -> pd.DataFrame:
+    """:func:`as_long_frame`, refused unless it has the item, annotator and label columns."""
     frame = as_long_frame(data)
     columns = [str(c) for c in frame.columns]
     missing = [c for c in ANNOTATION_COLUMNS if c not in columns]
@@ -492,6 +520,19 @@ def code_annotations(data: Any, level: str = "nominal") -> Coded:
             f"the annotations need the columns item, annotator and label; missing: "
             f"{', '.join(missing)} (columns found: {', '.join(columns) or 'none'})"
         )
+    return frame
+
+
+def code_frame(
+    frame: pd.DataFrame, level: str, sorted_items: bool = False, threads: bool = True
+) -> Coded:
+    """:func:`code_annotations` of a checked long frame.
+
+    ``sorted_items``: refuse (:class:`ItemsNotSorted`) item ids that ever decrease from one
+    row to the next (Categorical and dictionary columns: their stored codes), so that frames
+    cut between two rows with different items share no item. ``threads``: code the text
+    columns of a large frame in threads (off when the caller already runs parts in threads).
+    """
     notes: list[str] = []
     item_col, ann_col, label_col = (frame[c] for c in ANNOTATION_COLUMNS)
     nulls = (item_col.isna() | ann_col.isna() | label_col.isna()).to_numpy()
@@ -506,6 +547,8 @@ def code_annotations(data: Any, level: str = "nominal") -> Coded:
         item_col.reset_index(drop=True),
         ann_col.reset_index(drop=True),
         label_col.reset_index(drop=True),
+        sorted_items,
+        threads,
     )
     annotator_names, ann_rank = _sorted_names(annotators.names)
     ann = _lookup(annotators, ann_rank)

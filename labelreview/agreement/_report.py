@@ -25,10 +25,12 @@ from labelreview.agreement._alpha import (
     label_parts,
     to_matrix,
 )
-from labelreview.agreement._coding import code_annotations
 from labelreview.agreement._kappa import CohenCounts, cohen_from_counts
+from labelreview.agreement._parts import frame_sums
 from labelreview.agreement._sums import (
+    BUCKETS,
     AgreementSums,
+    ExactSums,
     Tally,
     groups_of_buckets,
     numerators_of,
@@ -340,9 +342,8 @@ def per_label_alpha(
         (overall alpha or None, labels sorted least reliable first).
     """
     _check_count("min_items", min_items, 1)
-    coded = code_annotations(annotations, "nominal")
-    parts = {"labels", "overall"} if coded.multi else {"labels"}
-    sums = AgreementSums.from_coded(coded, "nominal", parts)
+    # Multi-label data: the overall figure is the MASI alpha, which needs the overall sums.
+    sums, _ = frame_sums(annotations, "nominal", {"labels"}, multi_parts={"overall"})
     return per_label_from_sums(sums, min_items=min_items, thresholds=thresholds)
 
 
@@ -495,12 +496,14 @@ def agreement_report(
         min_pair_items=min_pair_items,
         confidence=confidence,
     )
-    coded = code_annotations(annotations, level)
-    sums = AgreementSums.from_coded(
-        coded, level, report_parts(bootstrap, leave_out), leave_out=leave_out
+    sums, pieces = frame_sums(
+        annotations, level, report_parts(bootstrap, leave_out), leave_out=leave_out
     )
     if bootstrap > 0 and sums.bucket_d is None:
-        sums.bucket_d = sums.add_ordinal_disagreement(coded, ordinal_metric(sums))
+        metric = ordinal_metric(sums)
+        sums.bucket_d = ExactSums(BUCKETS)
+        for coded in pieces:
+            sums.bucket_d.merge(sums.add_ordinal_disagreement(coded, metric))
     return report_from_sums(
         sums,
         bootstrap=bootstrap,

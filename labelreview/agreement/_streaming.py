@@ -18,6 +18,7 @@ from pathlib import Path
 import pandas as pd
 
 from labelreview.agreement._coding import check_level, code_annotations
+from labelreview.agreement._parts import frame_sums
 from labelreview.agreement._report import (
     AgreementResult,
     AgreementThresholds,
@@ -36,12 +37,14 @@ from labelreview.progress import ProgressCallback, phase
 
 
 def sums_of_batch(
-    batch: pd.DataFrame, level: str, parts: frozenset[str], leave_out: bool = True
+    batch: pd.DataFrame,
+    level: str,
+    parts: frozenset[str],
+    leave_out: bool = True,
+    threads: int | None = None,
 ) -> AgreementSums:
-    """The sums of one batch of whole items."""
-    return AgreementSums.from_coded(
-        code_annotations(batch, level), level, parts, leave_out=leave_out
-    )
+    """The sums of one batch of whole items (``threads``: see :func:`frame_sums`)."""
+    return frame_sums(batch, level, parts, leave_out=leave_out, threads=threads)[0]
 
 
 def merge_sums(first: AgreementSums | None, second: AgreementSums | None) -> AgreementSums | None:

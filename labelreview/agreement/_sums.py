@@ -265,7 +265,10 @@ class AgreementSums:
             n_repeated=coded.n_repeated,
         )
         raw: dict[str, Tally] = {}
-        raw["sizes"] = Tally.of((m[m > 0],), np.ones(int((m > 0).sum()), dtype=np.int64))
+        per_size = np.bincount(m)
+        per_size[:1] = 0
+        present = np.flatnonzero(per_size)
+        raw["sizes"] = Tally((present.astype(np.int64),), per_size[present].astype(np.int64))
         if "overall" in parts:
             assert groups is not None
             num = coincidence_numerators(groups, coded.n_values)
