@@ -17,8 +17,13 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from labelreview.agreement import UndefinedAgreementWarning, agreement_report, per_label_alpha
-from labelreview.agreement import _alpha, _parts
+from labelreview.agreement import (
+    UndefinedAgreementWarning,
+    _alpha,
+    _parts,
+    agreement_report,
+    per_label_alpha,
+)
 from labelreview.agreement._coding import code_annotations
 from labelreview.agreement._parts import frame_sums, item_cuts
 from labelreview.errors import UsageError
@@ -141,9 +146,7 @@ def test_cut_path_matches_krippendorff_package(small_parts, seed):
     # Reference: the `krippendorff` package's nominal alpha on the annotators x items matrix.
     frame = sorted_frame(20 + seed)
     wide = frame.pivot(index="annotator", columns="item", values="label").astype(float)
-    expected = krippendorff.alpha(
-        reliability_data=wide.to_numpy(), level_of_measurement="nominal"
-    )
+    expected = krippendorff.alpha(reliability_data=wide.to_numpy(), level_of_measurement="nominal")
     _parts.cpu_count, saved = (lambda: 2), _parts.cpu_count  # type: ignore[assignment]
     try:
         overall, _ = per_label_alpha(frame)
