@@ -14,6 +14,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from labelreview._gc import paused_gc
 from labelreview.config import (
     CONFIG_NAME,
     AnnotationsConfig,
@@ -213,6 +214,16 @@ def load_dataset(
         encoding=encoding,
         subjects=subjects,
     )
+    # Measured at 50,000 flagged labels (55,000 taxonomy rows, 300,000 annotations): the
+    # collector's runs took about a fifth of the load (0.43 s -> 0.33 s when paused).
+    with paused_gc():
+        return _load_files(config, annotations=annotations, taxonomy=taxonomy)
+
+
+def _load_files(
+    config: DatasetConfig, *, annotations: Path | None, taxonomy: Path | None
+) -> Dataset:
+    """Read the files ``config`` names (``annotations``/``taxonomy``: the caller's overrides)."""
     root = config.root
 
     reports: list[LoadReport] = []

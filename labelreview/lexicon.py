@@ -21,6 +21,7 @@ from typing import Any
 
 import yaml
 
+from labelreview._gc import paused_gc
 from labelreview._resources import lexicons_dir
 from labelreview._yaml import compose
 from labelreview.errors import LexiconError
@@ -513,6 +514,15 @@ def collect_problems(
     Returns:
         The merged lexicon, or None when any error was found, and the list of problems.
     """
+    # The shipped set is about 35,000 YAML nodes and 2,500 entries; with the collector running
+    # this took 0.19-0.39 s after the review app's imports, paused 0.12 s (measured 2026-12-03).
+    with paused_gc():
+        return _collect_problems(layers, base)
+
+
+def _collect_problems(
+    layers: Sequence[Path | str], base: Path | str | None
+) -> tuple[Lexicon | None, list[Problem]]:
     if base == "builtin":
         base_files = builtin_files()
     elif base is None:

@@ -133,3 +133,14 @@ def test_shipped_set_validates_without_errors():
     # "Hundreds of terms, not a dozen" (the issue): every category carries a real list.
     assert sum(by_category.values()) >= 500
     assert min(by_category.values()) >= 20, by_category
+
+
+def test_loading_restores_the_garbage_collector():
+    import gc
+
+    assert gc.isenabled()
+    load_lexicon()
+    assert gc.isenabled()
+    with pytest.raises(LexiconError):
+        load_lexicon(base=Path("/nonexistent/lexicons"))
+    assert gc.isenabled()
