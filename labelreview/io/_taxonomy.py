@@ -184,13 +184,15 @@ def _labels_from_names(
     names: list[str], ids: list[str | None], descriptions: list[str | None]
 ) -> list[TaxonomyLabel]:
     """Full-path names and their cells -> labels in file order, each name once."""
+    # A cleaned name never starts with '/', so an empty head means it has no parent
+    # (what _parent_of says, without a call per name).
+    parents = [name.rpartition("/")[0] or None for name in names]
     # Positional arguments: a quarter faster than keywords for 55,000 frozen dataclasses.
-    return _keep_first(
-        [
-            TaxonomyLabel(name, ident, _parent_of(name), description)
-            for name, ident, description in zip(names, ids, descriptions, strict=True)
-        ]
-    )
+    labels = [
+        TaxonomyLabel(name, ident, parent, description)
+        for name, ident, parent, description in zip(names, ids, parents, descriptions, strict=True)
+    ]
+    return labels if len(set(names)) == len(names) else _keep_first(labels)
 
 
 def _text_fast(text: str) -> list[TaxonomyLabel] | None:

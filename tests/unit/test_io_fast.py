@@ -7,6 +7,9 @@ reader's, and on malformed input it must decline, so that the error (file, line,
 careful reader's own. The messages pinned below are the ones the careful reader gave before the
 fast path existed (checked against the previous commit's code).
 
+The last section covers the shortcuts in the table readers (the empty-file test without a
+copy, quote-free files split at every line break).
+
 CSV cases follow RFC 4180 section 2 (quoted fields holding commas, doubled quotes and line
 breaks; CRLF record ends); the byte order mark case follows RFC 3629 section 6.
 """
@@ -23,7 +26,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from labelreview.errors import LoadError
-from labelreview.io import _taxonomy, load_taxonomy
+from labelreview.io import _taxonomy, load_annotations, load_taxonomy
 from labelreview.io._common import decode, read_bytes
 from labelreview.model import TaxonomyLabel
 
@@ -274,3 +277,39 @@ def test_random_files(header: str, cells: list[str], text_format: bool) -> None:
         if got is not None:
             assert got == expected
         assert outcome(lambda: load_taxonomy(path)) == expected
+
+
+# -- annotation and item files: the reading shortcuts ------------------------------------------
+
+
+@pytest.mark.parametrize("content", [b" ", b" \t\r\n\x0b\x0c\n"], ids=["space", "ascii_blanks"])
+def test_blank_files_are_empty(content: bytes, tmp_path: Path) -> None:
+    # bytes.isspace and bytes.strip both use ASCII whitespace (Python docs, bytes methods).
+    path = tmp_path / "a.csv"
+    path.write_bytes(content)
+    with pytest.raises(LoadError, match=r"a\.csv: the file is empty"):
+        load_annotations(path)
+
+
+def test_non_ascii_blank_is_not_empty(tmp_path: Path) -> None:
+    path = tmp_path / "a.csv"
+    path.write_bytes("\u00a0\n".encode())  # a no-break space is content to the byte check
+    with pytest.raises(LoadError) as caught:
+        load_annotations(path)
+    assert "the file is empty" not in str(caught.value)
+
+
+def test_quoted_and_unquoted_files_read_alike(tmp_path: Path) -> None:
+    # Without any quote the reader splits rows at every line break (no line break can be
+    # inside a value, RFC 4180 section 2); with quotes it must keep quoted line breaks.
+    plain = tmp_path / "plain.csv"
+    plain.write_text("item,annotator,label\np1,a1,boat\np2,a1,rope coil\r\np3,a2,hull\n")
+    quoted = tmp_path / "quoted.csv"
+    quoted.write_text(
+        '"item","annotator","label"\n"p1","a1","boat"\np2,a1,"rope coil"\r\np3,a2,hull\n'
+    )
+    multiline = tmp_path / "multiline.csv"
+    multiline.write_text('item,annotator,label\np1,a1,boat\np2,a1,"rope\ncoil"\np3,a2,hull\n')
+    frame, _ = load_annotations(plain)
+    assert frame.equals(load_annotations(quoted)[0])
+    assert list(load_annotations(multiline)[0]["label"]) == ["boat", "rope\ncoil", "hull"]
