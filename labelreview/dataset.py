@@ -14,6 +14,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from labelreview._gc import paused_gc
 from labelreview.config import (
     CONFIG_NAME,
     AnnotationsConfig,
@@ -213,6 +214,17 @@ def load_dataset(
         encoding=encoding,
         subjects=subjects,
     )
+    # Measured at 50,000 flagged labels (55,000 taxonomy rows, 300,000 annotations), fresh
+    # processes after the review app's imports, medians of 11: 0.30 s with the collector
+    # running, 0.24 s paused (its next run, over what was loaded, included).
+    with paused_gc():
+        return _load_files(config, annotations=annotations, taxonomy=taxonomy)
+
+
+def _load_files(
+    config: DatasetConfig, *, annotations: Path | None, taxonomy: Path | None
+) -> Dataset:
+    """Read the files ``config`` names (``annotations``/``taxonomy``: the caller's overrides)."""
     root = config.root
 
     reports: list[LoadReport] = []

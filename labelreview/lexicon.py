@@ -21,6 +21,7 @@ from typing import Any
 
 import yaml
 
+from labelreview._gc import paused_gc
 from labelreview._resources import lexicons_dir
 from labelreview._yaml import compose
 from labelreview.errors import LexiconError
@@ -156,13 +157,16 @@ class _MList(list[Any], _Marked):
     pass
 
 
-def _construct(node: yaml.Node, path: str) -> Any:
+_STR_TAG = "tag:yaml.org,2002:str"
+
+
+def _construct(node: yaml.Node, path: str, scalars: yaml.constructor.SafeConstructor) -> Any:
     if isinstance(node, yaml.MappingNode):
         out = _MDict()
         out.line = node.start_mark.line + 1
         out.lines = {}
         for key_node, value_node in node.value:
-            key = _construct(key_node, path)
+            key = _construct(key_node, path, scalars)
             if not isinstance(key, str):
                 raise LexiconError(
                     "keys must be text", source=path, line=key_node.start_mark.line + 1
@@ -173,7 +177,7 @@ def _construct(node: yaml.Node, path: str) -> Any:
                     source=path,
                     line=key_node.start_mark.line + 1,
                 )
-            out[key] = _construct(value_node, path)
+            out[key] = _construct(value_node, path, scalars)
             out.lines[key] = key_node.start_mark.line + 1
         return out
     if isinstance(node, yaml.SequenceNode):
@@ -181,13 +185,15 @@ def _construct(node: yaml.Node, path: str) -> Any:
         seq.line = node.start_mark.line + 1
         seq.lines = {}
         for i, item in enumerate(node.value):
-            seq.append(_construct(item, path))
+            seq.append(_construct(item, path, scalars))
             seq.lines[i] = item.start_mark.line + 1
         return seq
-    return _SCALARS.construct_object(node, deep=True)
-
-
-_SCALARS = yaml.constructor.SafeConstructor()
+    if node.tag == _STR_TAG:
+        # What SafeConstructor.construct_yaml_str returns for a text scalar. 29,000 of the
+        # shipped set's 34,000 nodes are text; going through construct_object took 0.108 s
+        # for the set against 0.093 s this way (medians of 15, collector paused).
+        return node.value
+    return scalars.construct_object(node, deep=True)
 
 
 def _read_yaml(path: Path) -> Any:
@@ -204,7 +210,9 @@ def _read_yaml(path: Path) -> Any:
     node = compose(path, text, LexiconError)
     if node is None:
         return None
-    return _construct(node, str(path))
+    # One constructor per file: a constructor remembers every node it has built (for YAML
+    # aliases), so a shared one kept each load's nodes alive for the life of the process.
+    return _construct(node, str(path), yaml.constructor.SafeConstructor())
 
 
 # ---------------------------------------------------------------------------------------------
@@ -513,6 +521,15 @@ def collect_problems(
     Returns:
         The merged lexicon, or None when any error was found, and the list of problems.
     """
+    # The shipped set is about 35,000 YAML nodes and 2,500 entries; with the collector running
+    # this took 0.19-0.39 s after the review app's imports, paused 0.12 s (measured 2026-12-03).
+    with paused_gc():
+        return _collect_problems(layers, base)
+
+
+def _collect_problems(
+    layers: Sequence[Path | str], base: Path | str | None
+) -> tuple[Lexicon | None, list[Problem]]:
     if base == "builtin":
         base_files = builtin_files()
     elif base is None:

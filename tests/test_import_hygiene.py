@@ -48,3 +48,20 @@ def test_core_module_loads_no_front_end(module):
         [sys.executable, "-c", code], capture_output=True, text=True, check=True
     ).stdout.strip()
     assert out == "", f"{module} imported {out}"
+
+
+# What the review app's start must not wait for: the statistics stack and the engines it runs
+# in the background after the first paint (or never, for this command).
+LATER = ("scipy", "sklearn", "statsmodels", "dask", "distributed", "labelreview.agreement")
+
+
+@pytest.mark.parametrize("front_end", FRONT_ENDS)
+def test_front_end_import_leaves_heavy_modules_for_later(front_end):
+    code = (
+        f"import sys, importlib; importlib.import_module({front_end!r}); "
+        f"print(','.join(m for m in {LATER!r} if m in sys.modules))"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True
+    ).stdout.strip()
+    assert out == "", f"importing {front_end} loaded {out}"

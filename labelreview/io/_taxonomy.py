@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 from pathlib import Path
 from typing import Any
 
@@ -95,46 +96,12 @@ def _parent_of(name: str) -> str | None:
     return head if sep else None
 
 
-def _keep_first(labels: list[TaxonomyLabel]) -> list[TaxonomyLabel]:
-    seen: set[str] = set()
-    out: list[TaxonomyLabel] = []
-    for label in labels:
-        if label.name not in seen:
-            seen.add(label.name)
-            out.append(label)
-    return out
+def _column_positions(path: Path, header: list[str]) -> dict[str, int]:
+    """Role (``id``, ``name``, ``parent``, ``description``) -> its column in ``header``.
 
-
-def _read_text(path: Path, text: str) -> list[TaxonomyLabel]:
-    labels: list[TaxonomyLabel] = []
-    for number, line in enumerate(text.splitlines(), start=1):
-        stripped = line.strip()
-        if not stripped or stripped.startswith("#"):
-            continue
-        name = _clean_path(path, stripped, number)
-        labels.append(TaxonomyLabel(name=name, parent=_parent_of(name)))
-    return _keep_first(labels)
-
-
-def _read_csv(path: Path, text: str, delimiter: str) -> list[TaxonomyLabel]:
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
-    rows: list[tuple[int, list[str]]] = []
-    previous = 0
-    try:
-        for row in reader:
-            start, previous = previous + 1, reader.line_num
-            if row:
-                rows.append((start, row))
-    except csv.Error as exc:
-        raise LoadError(
-            f"malformed CSV: {exc}",
-            hint="Check the quoting on this line (RFC 4180, section 2).",
-            source=str(path),
-            line=reader.line_num,
-        ) from None
-    if not rows:
-        raise LoadError("the file is empty", source=str(path))
-    header = [h.strip() for h in rows[0][1]]
+    Raises:
+        LoadError: Two columns could be the same role, or there is no name column.
+    """
     lowered = [h.lower() for h in header]
     position: dict[str, int] = {}
     for role, aliases in _COLUMN_ALIASES.items():
@@ -160,6 +127,160 @@ def _read_csv(path: Path, text: str, delimiter: str) -> list[TaxonomyLabel]:
             source=str(path),
             line=1,
         )
+    return position
+
+
+def _keep_first(labels: list[TaxonomyLabel]) -> list[TaxonomyLabel]:
+    seen: set[str] = set()
+    out: list[TaxonomyLabel] = []
+    for label in labels:
+        if label.name not in seen:
+            seen.add(label.name)
+            out.append(label)
+    return out
+
+
+# -- the fast path -----------------------------------------------------------------------------
+#
+# For well-formed input the readers below first try a column-wise pass: the same parsing (the
+# csv module, str.splitlines), then each step applied to whole columns with comprehensions
+# instead of per-row function calls, dictionaries and error bookkeeping. Anything it does not
+# handle, or that looks wrong, makes it return None, and the careful per-row reader runs from
+# the start, so every error message (with its line and column) comes from the careful reader.
+# load_taxonomy of 55,000 names (no parent column): 0.17 s -> 0.07 s with the collector
+# paused as load_dataset pauses it, 0.29 s -> 0.12 s with it running (medians of 7).
+
+_SPACE_BY_SLASH = re.compile(r"/(?:(?<=\s/)|(?=\s))")
+"""A '/' with whitespace before or after it. Python's ``\\s`` is exactly the set of characters
+``str.strip()`` removes (both use ``str.isspace``; tests/unit/test_io_fast.py checks every code
+point). It starts with a literal '/', so the search skips ahead: 4 ms over 55,000 names, where
+``\\s/|/\\s`` took 17 ms."""
+
+
+def _clean_names(names: list[str]) -> list[str] | None:
+    """:func:`_clean_path` of every name (already stripped), or None if one would fail (or
+    there are no names: the careful reader says so).
+
+    Joined one per line with a line break at each end, a name needs cleaning (or is an error)
+    exactly when the text holds ``//`` or a '/' beside whitespace: a part with spaces around
+    it, or a name starting or ending with '/'. Usually neither occurs and the names are
+    returned as they are; otherwise each name is split and its parts stripped.
+    """
+    if not names or not all(names) or max(map(len, names)) > MAX_FIELD_CHARS:
+        return None
+    joined = "\n".join(("", *names, ""))
+    if "//" not in joined and _SPACE_BY_SLASH.search(joined) is None:
+        return names
+    cleaned: list[str] = []
+    for name in names:
+        parts = [part.strip() for part in name.split("/")]
+        if not all(parts):
+            return None
+        cleaned.append("/".join(parts))
+    return cleaned
+
+
+def _labels_from_names(
+    names: list[str], ids: list[str | None], descriptions: list[str | None]
+) -> list[TaxonomyLabel]:
+    """Full-path names and their cells -> labels in file order, each name once."""
+    # A cleaned name never starts with '/', so an empty head means it has no parent
+    # (what _parent_of says, without a call per name).
+    parents = [name.rpartition("/")[0] or None for name in names]
+    # Positional arguments: a quarter faster than keywords for 55,000 frozen dataclasses.
+    labels = [
+        TaxonomyLabel(name, ident, parent, description)
+        for name, ident, parent, description in zip(names, ids, parents, descriptions, strict=True)
+    ]
+    return labels if len(set(names)) == len(names) else _keep_first(labels)
+
+
+def _text_fast(text: str) -> list[TaxonomyLabel] | None:
+    """:func:`_read_text` for input it accepts without an error, else None."""
+    lines = [line.strip() for line in text.splitlines()]
+    names = _clean_names([line for line in lines if line and not line.startswith("#")])
+    if names is None:
+        return None
+    nothing: list[str | None] = [None] * len(names)
+    return _labels_from_names(names, nothing, nothing)
+
+
+def _csv_fast(path: Path, text: str, delimiter: str) -> list[TaxonomyLabel] | None:
+    """:func:`_read_csv` for files without parent links that it accepts, else None."""
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
+    try:
+        rows = [row for row in reader if row]
+    except csv.Error:
+        return None
+    if len(rows) < 2:
+        return None
+    header = [h.strip() for h in rows[0]]
+    try:
+        position = _column_positions(path, header)
+    except LoadError:
+        return None
+    body = rows[1:]
+    if any(len(row) != len(header) for row in body):
+        return None
+
+    def column(role: str) -> list[str | None]:
+        index = position.get(role)
+        if index is None:
+            return [None] * len(body)
+        return [row[index].strip() or None for row in body]
+
+    if any(column("parent")):
+        return None  # parents given by id or name: resolved (and checked) by the careful path
+    ids = column("id")
+    given = [ident for ident in ids if ident is not None]
+    if len(set(given)) != len(given):
+        return None
+    names = _clean_names([row[position["name"]].strip() for row in body])
+    if names is None:
+        return None
+    return _labels_from_names(names, ids, column("description"))
+
+
+# -- the careful path --------------------------------------------------------------------------
+
+
+def _read_text(path: Path, text: str) -> list[TaxonomyLabel]:
+    fast = _text_fast(text)
+    if fast is not None:
+        return fast
+    labels: list[TaxonomyLabel] = []
+    for number, line in enumerate(text.splitlines(), start=1):
+        stripped = line.strip()
+        if not stripped or stripped.startswith("#"):
+            continue
+        name = _clean_path(path, stripped, number)
+        labels.append(TaxonomyLabel(name=name, parent=_parent_of(name)))
+    return _keep_first(labels)
+
+
+def _read_csv(path: Path, text: str, delimiter: str) -> list[TaxonomyLabel]:
+    fast = _csv_fast(path, text, delimiter)
+    if fast is not None:
+        return fast
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
+    rows: list[tuple[int, list[str]]] = []
+    previous = 0
+    try:
+        for row in reader:
+            start, previous = previous + 1, reader.line_num
+            if row:
+                rows.append((start, row))
+    except csv.Error as exc:
+        raise LoadError(
+            f"malformed CSV: {exc}",
+            hint="Check the quoting on this line (RFC 4180, section 2).",
+            source=str(path),
+            line=reader.line_num,
+        ) from None
+    if not rows:
+        raise LoadError("the file is empty", source=str(path))
+    header = [h.strip() for h in rows[0][1]]
+    position = _column_positions(path, header)
 
     def cell(row: list[str], role: str) -> str:
         index = position.get(role)

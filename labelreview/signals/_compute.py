@@ -5,9 +5,8 @@ from __future__ import annotations
 import time
 import warnings
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from labelreview.agreement import AgreementResult, AgreementThresholds, agreement_report
 from labelreview.config import SignalsConfig
 from labelreview.dataset import Dataset
 from labelreview.errors import LabelReviewError
@@ -16,6 +15,9 @@ from labelreview.signals._disparity import AttributeSummary, DisparityResult, gr
 from labelreview.signals._judgements import code_judgements
 from labelreview.signals._proxy import ProxyResult, proxy_columns
 from labelreview.signals._skew import AnnotatorSummary, SkewResult, annotator_skew
+
+if TYPE_CHECKING:
+    from labelreview.agreement import AgreementResult
 
 SPLITS_LISTED = 1000
 """How many value splits the agreement report lists for the contested labels' partners."""
@@ -103,6 +105,10 @@ def compute_signals(dataset: Dataset, settings: SignalsConfig | None = None) -> 
         dataset: A loaded dataset (its config gives the attributes and agreement settings).
         settings: Overrides the config's ``signals`` section.
     """
+    # Imported here: the agreement engine (with scipy) is not needed to start the review app,
+    # which computes the signals in the background after its first paint.
+    from labelreview.agreement import AgreementThresholds, agreement_report
+
     config = dataset.config
     settings = settings or config.signals
     notes: list[str] = []

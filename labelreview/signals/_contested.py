@@ -11,10 +11,10 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from labelreview.agreement import AgreementResult
-from labelreview.agreement._coding import SET_SEPARATOR  # how label sets are written
+if TYPE_CHECKING:
+    from labelreview.agreement import AgreementResult
 
 PARTNERS = 3
 """How many split partners a contested label lists."""
@@ -63,6 +63,8 @@ NOTHING = "(no label)"
 
 
 def _members(value: str, multi: bool) -> set[str]:
+    from labelreview.agreement._coding import SET_SEPARATOR  # how label sets are written
+
     return set(value.split(SET_SEPARATOR)) if multi else {value}
 
 

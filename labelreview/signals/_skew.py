@@ -27,15 +27,16 @@ out, minus alpha with everyone; positive: agreement rises without them).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-import scipy.sparse as sp
 
-from labelreview.agreement import AgreementResult
 from labelreview.config import SignalsConfig
 from labelreview.signals._judgements import Judgements
 from labelreview.signals._stats import benjamini_hochberg, binomial_two_sided
+
+if TYPE_CHECKING:
+    from labelreview.agreement import AgreementResult
 
 MIN_COUNT = 5
 """The larger of given and expected must reach this (common practice, no source)."""
@@ -105,6 +106,8 @@ class AnnotatorSummary:
 
 def _first_pass(j: Judgements) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """(given, expected, items) as annotators x labels, the others being everyone else."""
+    import scipy.sparse as sp  # here, not at the top: the review app's start does not need it
+
     n_ann, n_lab = j.n_annotators, j.n_labels
     comparable_pair = j.judges[j.pair_item] >= 2
     n_items = np.bincount(j.pair_annotator[comparable_pair], minlength=n_ann)

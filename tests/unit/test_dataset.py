@@ -147,3 +147,39 @@ def test_load_dataset_never_writes(tmp_path: Path) -> None:
     before = {p.name: p.read_bytes() for p in tmp_path.iterdir()}
     load_dataset(tmp_path)
     assert {p.name: p.read_bytes() for p in tmp_path.iterdir()} == before
+
+
+def test_paused_gc_restores_the_collector() -> None:
+    import gc
+
+    from labelreview._gc import paused_gc
+
+    assert gc.isenabled()
+    with paused_gc():
+        assert not gc.isenabled()
+        with paused_gc():  # nested: the inner block must not turn it back on
+            assert not gc.isenabled()
+        assert not gc.isenabled()
+    assert gc.isenabled()
+    with pytest.raises(ZeroDivisionError), paused_gc():
+        1 / 0  # noqa: B018
+    assert gc.isenabled()
+    gc.disable()
+    try:
+        with paused_gc():
+            pass
+        assert not gc.isenabled()  # it was off before; it stays off
+    finally:
+        gc.enable()
+
+
+def test_loading_restores_the_garbage_collector(tmp_path: Path) -> None:
+    import gc
+
+    root = folder_with(tmp_path, taxonomy__txt="taxonomy.txt")
+    load_dataset(root)
+    assert gc.isenabled()
+    (root / "taxonomy.txt").write_text("boats\nboats//dinghy\n")
+    with pytest.raises(LoadError):
+        load_dataset(root)
+    assert gc.isenabled()

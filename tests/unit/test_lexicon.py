@@ -133,3 +133,57 @@ def test_shipped_set_validates_without_errors():
     # "Hundreds of terms, not a dozen" (the issue): every category carries a real list.
     assert sum(by_category.values()) >= 500
     assert min(by_category.values()) >= 20, by_category
+
+
+# -- reading speed paths: same content ---------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    "path", sorted((Path(__file__).parents[2] / "lexicons" / "base").glob("*.yaml")), ids=str
+)
+def test_read_yaml_matches_pyyaml_safe_load(path):
+    # PyYAML's own pure-Python SafeLoader is the reference: our node walk (libyaml composer,
+    # text scalars taken directly, line numbers kept on the side) must give the same data.
+    import yaml
+
+    from labelreview.lexicon import _read_yaml
+
+    reference = yaml.load(path.read_text(encoding="utf-8-sig"), Loader=yaml.SafeLoader)
+    assert _read_yaml(path) == reference
+
+
+def test_text_scalars_taken_directly_give_the_same_lexicon(monkeypatch):
+    import labelreview.lexicon as lexicon
+
+    direct = load_lexicon()
+    monkeypatch.setattr(lexicon, "_STR_TAG", "(never a tag)")  # every scalar via PyYAML
+    constructed = load_lexicon()
+    assert direct == constructed
+    assert direct.content_hash == constructed.content_hash
+
+
+def test_loading_keeps_no_yaml_nodes_alive():
+    # A PyYAML constructor remembers every node it built (for aliases); one shared by all loads
+    # kept each load's 29,000 nodes, with their position marks, alive for the whole process.
+    import gc
+
+    import yaml
+
+    def nodes_alive() -> int:
+        gc.collect()
+        return sum(isinstance(o, yaml.nodes.Node) for o in gc.get_objects())
+
+    before = nodes_alive()
+    load_lexicon()
+    assert nodes_alive() == before
+
+
+def test_loading_restores_the_garbage_collector():
+    import gc
+
+    assert gc.isenabled()
+    load_lexicon()
+    assert gc.isenabled()
+    with pytest.raises(LexiconError):
+        load_lexicon(base=Path("/nonexistent/lexicons"))
+    assert gc.isenabled()
