@@ -1,9 +1,10 @@
-"""Pausing Python's cyclic garbage collector while a loader builds many small objects.
+"""Pausing Python's cyclic garbage collector while many small, long-lived objects are built.
 
-Loading a dataset or the lexicon set allocates hundreds of thousands of objects that live on
-(labels, YAML nodes, lexicon entries). The cyclic collector runs every few hundred
+Loading a dataset or the lexicon set, the scan, the lexicon summaries and the review queue each
+allocate tens or hundreds of thousands of objects that live on (labels, YAML nodes, lexicon
+entries, findings, queue entries). The cyclic collector runs every few hundred
 allocations, and its older generations re-walk everything already alive, including every
-module the review app has imported. None of our loaders makes reference cycles that must be
+module the review app has imported. None of them makes reference cycles that must be
 freed early, so they pause the collector for their duration. Counting stays on, so the
 collector looks at the new objects once, at its next run after the pause.
 """

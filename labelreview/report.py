@@ -10,7 +10,7 @@ from __future__ import annotations
 import csv
 import io
 import json
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -20,7 +20,7 @@ import pandas as pd
 from labelreview.dataset import Dataset
 from labelreview.errors import UsageError
 from labelreview.lexicon import Lexicon, load_lexicon
-from labelreview.model import SEVERITY_RANK, Finding, Flag, Reason
+from labelreview.model import SEVERITY_RANK, Finding, Flag, Reason, Severity
 from labelreview.scan import Scanner
 
 CAUTIONS: tuple[str, ...] = (
@@ -78,36 +78,82 @@ class ScanResult:
         return out
 
 
+@dataclass(frozen=True)
+class LexiconReasons:
+    """What the lexicons say about one label: its findings summed up for a :class:`Flag`."""
+
+    severity: Severity
+    """The highest severity among the findings."""
+    categories: tuple[str, ...]
+    terms: tuple[str, ...]
+    reasons: tuple[str, ...]
+    """One sentence per distinct reason, most severe first."""
+    suggestions: tuple[str, ...]
+    evidence: tuple[Reason, ...]
+    """``Reason("lexicon", sentence, term)`` for each of ``reasons``."""
+
+
+def lexicon_reasons(findings: Iterable[Finding]) -> dict[str, LexiconReasons]:
+    """Each flagged label's findings summed up, labels in first-seen order.
+
+    Findings are read most severe first, then by position in the label; each reason keeps the
+    term that first gave it. This is the one place a label's lexicon reasons are put together,
+    for :func:`flags_from_scan` and the review queue alike.
+    """
+    by_label: dict[str, list[Finding]] = {}
+    for finding in findings:
+        found = by_label.get(finding.label)
+        if found is None:
+            by_label[finding.label] = [finding]
+        else:
+            found.append(finding)
+    # Labels flagged for the same reasons share one summary: 0.06 s instead of 0.20 s for the
+    # review benchmark's 50,000 flagged labels (2,500 distinct summaries).
+    shared: dict[tuple[tuple[Any, ...], ...], LexiconReasons] = {}
+    out: dict[str, LexiconReasons] = {}
+    for label, found in by_label.items():
+        if len(found) > 1:  # one finding (the common case) needs no sorting
+            found = sorted_findings(found)
+        key = tuple([(f.severity, f.category, f.term, f.reason, f.suggestions) for f in found])
+        summary = shared.get(key)
+        if summary is None:
+            term_of: dict[str, str] = {}
+            for f in found:
+                term_of.setdefault(f.reason, f.term)
+            summary = shared[key] = LexiconReasons(
+                severity=found[0].severity,
+                categories=tuple(dict.fromkeys(f.category for f in found)),
+                terms=tuple(dict.fromkeys(f.term for f in found)),
+                reasons=tuple(term_of),
+                suggestions=tuple(dict.fromkeys(s for f in found for s in f.suggestions)),
+                evidence=tuple(Reason("lexicon", text, term) for text, term in term_of.items()),
+            )
+        out[label] = summary
+    return out
+
+
 def flags_from_scan(result: ScanResult) -> list[Flag]:
     """One :class:`Flag` per flagged label, most severe first, then most used, then by name.
 
     Each reason is also in ``evidence`` as ``Reason("lexicon", sentence, term)``; the review
     queue (:mod:`labelreview.queue`) adds the data signals and the score.
     """
-    by_label: dict[str, list[Finding]] = {}
-    for finding in result.findings:
-        by_label.setdefault(finding.label, []).append(finding)
-    flags = []
     nothing = LabelUse()
     usage = result.usage
-    for label, found in by_label.items():
+    flags = []
+    for label, lex in lexicon_reasons(result.findings).items():
         use = usage.get(label, nothing)
-        if len(found) > 1:  # one finding (the common case) needs no sorting
-            found = sorted_findings(found)
-        term_of: dict[str, str] = {}
-        for f in found:
-            term_of.setdefault(f.reason, f.term)
         flags.append(
             Flag(
                 label=label,
-                severity=found[0].severity,
-                categories=tuple(dict.fromkeys(f.category for f in found)),
-                terms=tuple(dict.fromkeys(f.term for f in found)),
-                reasons=tuple(term_of),
-                suggestions=tuple(dict.fromkeys(s for f in found for s in f.suggestions)),
+                severity=lex.severity,
+                categories=lex.categories,
+                terms=lex.terms,
+                reasons=lex.reasons,
+                suggestions=lex.suggestions,
                 annotations=use.annotations,
                 items=use.items,
-                evidence=tuple(Reason("lexicon", text, term) for text, term in term_of.items()),
+                evidence=lex.evidence,
             )
         )
     flags.sort(key=lambda f: (-SEVERITY_RANK[f.severity], -f.annotations, f.label.casefold()))
@@ -128,13 +174,28 @@ def label_usage(
     in_tax = set(taxonomy_names)
     if annotations is not None and len(annotations):
         grouped = annotations.groupby("label", sort=False)["item"].agg(["size", "nunique"])
-        for label, size, nunique in zip(
-            grouped.index, grouped["size"], grouped["nunique"], strict=True
-        ):
-            usage[str(label)] = LabelUse(int(size), int(nunique), str(label) in in_tax)
+        # As plain lists: stepping through the index and the columns element by element cost
+        # four times as much (0.04 s against 0.01 s at 55,000 labels).
+        counts = zip(
+            grouped.index.tolist(),
+            grouped["size"].tolist(),
+            grouped["nunique"].tolist(),
+            strict=True,
+        )
+        # Labels used alike share one (immutable) record: 118 records for the review
+        # benchmark's 55,000 labels, which also spares the garbage collector 55,000 objects.
+        shared: dict[tuple[int, int, bool], LabelUse] = {}
+        for label, size, nunique in counts:
+            name = str(label)
+            key = (int(size), int(nunique), name in in_tax)
+            use = shared.get(key)
+            if use is None:
+                use = shared[key] = LabelUse(*key)
+            usage[name] = use
+    unused = LabelUse(0, 0, True)
     for name in taxonomy_names:
         if name not in usage:
-            usage[name] = LabelUse(0, 0, True)
+            usage[name] = unused
     return usage
 
 

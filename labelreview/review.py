@@ -221,11 +221,11 @@ class ReviewSession:
         so each decision's snapshot) uses these entries: a decision records what the curator
         was shown.
         """
-        entries = build_queue(
+        queue = build_queue(
             self.scanned.result, DataSignals(settings=self.config.signals), self.config.queue
-        ).entries
-        self._preliminary = {f.label: f for f in entries}
-        return list(entries)
+        )
+        self._preliminary = queue.by_label
+        return list(queue.entries)
 
     def flag(self, label: str) -> Flag | None:
         """The entry for ``label`` in :attr:`flags`, or None when nothing flags it.

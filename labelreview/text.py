@@ -85,6 +85,8 @@ def tokenize(segment: str) -> tuple[Token, ...]:
                 plain = _PLAIN[raw] = Token(raw)
             tokens.append(plain)
             continue
+        if raw.isdigit():  # a number is an id (_ID_TOKEN): "cowman_818174" -> "cowman"
+            continue
         possessive = False
         word = raw.strip("'")
         if raw.endswith("'s") and len(raw) > 2:

@@ -42,6 +42,8 @@ def flagged(scanner, label):
         ("lazy-worker", ("lazy", "worker")),
         ("n04567_LAZY worker", ("lazy", "worker")),
         ("12:lazy", ("lazy",)),
+        ("cowman_818174", ("cowman",)),
+        ("4x4_driver", ("4x4", "driver")),
         ("Ｌａｚｙ", ("lazy",)),  # full-width letters: NFKC
         ("Naïve", ("naive",)),
         ("HTMLPage", ("html", "page")),
