@@ -9,6 +9,7 @@ README as planted examples.
 
 from __future__ import annotations
 
+import gc
 import shutil
 
 from textual.widgets import Input, OptionList, Static
@@ -396,6 +397,7 @@ async def test_a_second_app_is_told_the_log_is_locked(sample_scan, log_path):
             body = text_of(second, "#message-body")
             assert "the review app (tomas)" in body and "Nothing was written" in body
             assert isinstance(second.failure, LogLockedError)
+            assert gc.isenabled()
 
             await pilot.press("v")  # look read-only
             await second.workers.wait_for_complete()
@@ -439,6 +441,8 @@ async def test_opens_a_folder_in_the_background(tmp_path):
     async with app.run_test(size=SIZE) as pilot:
         assert "opening" in text_of(app, "#where")  # the screen is there before the data
         await opened(app, pilot)
+        # The cyclic collector, paused while loading, runs again once the queue is shown.
+        assert gc.isenabled()
         assert len(app.rows) == 28 and "ines" in text_of(app, "#where")
         assert app.rows[0].agreement is not None  # measured in the background
         await pilot.press("a")
@@ -458,6 +462,7 @@ async def test_a_folder_that_cannot_be_read_is_reported(tmp_path):
         await pilot.pause()
         assert isinstance(app.screen, MessageScreen)
         assert "found no annotation or taxonomy file" in text_of(app, "#message-body")
+        assert gc.isenabled()  # resumed when loading fails, too
         await pilot.press("q")
     assert isinstance(app.failure, LoadError) and app.return_code == 2
     assert not (tmp_path / "labelreview-log.jsonl").exists()
