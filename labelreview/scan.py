@@ -118,6 +118,8 @@ _NEVER_FUZZY = PERSON_NOUNS | FILLERS
 _SUBSTITUTES = re.compile(r"[0-9@$]")
 _RUNS = re.compile(r"((.)\2*)")
 _ONE_EDIT_MIN_LENGTH = 6
+_FUZZY_BLOCK = 2_000_000
+"""Largest tokens x forms block scored at once by the fuzzy stage (about 16 MB of scores)."""
 
 
 def _runs(word: str) -> list[tuple[str, int]]:
@@ -340,11 +342,36 @@ class Scanner:
                 self._unknown_cache[token] = result
 
     def _fuzzy_batch(self, plains: list[str]) -> list[tuple[str, str, float] | None]:
+        """The best fuzzy form of each plain token (or None), in the order given.
+
+        ``fuzz.ratio`` needs similar sizes, so a token is only compared with the forms within
+        two letters of its length: forms are sorted by (length, text), so those are one slice,
+        and tokens of one length are compared with their slice in bounded blocks. (One dense
+        tokens x forms matrix took 12 s and gigabytes at 55,000 unknown words.)
+        """
         forms = self._fuzzy_forms  # one-word forms, sorted by (length, text)
         lengths = self._fuzzy_lengths
-        query_lengths = np.array([len(p) for p in plains])
-        # ratio needs similar sizes: only forms within two letters of the token's length
-        window = np.abs(query_lengths[:, None] - lengths[None, :]) <= 2
+        out: list[tuple[str, str, float] | None] = [None] * len(plains)
+        by_length: dict[int, list[int]] = {}
+        for index, plain in enumerate(plains):
+            by_length.setdefault(len(plain), []).append(index)
+        for size, indices in by_length.items():
+            lo = int(np.searchsorted(lengths, size - 2, side="left"))
+            hi = int(np.searchsorted(lengths, size + 2, side="right"))
+            if hi <= lo:
+                continue
+            step = max(1, _FUZZY_BLOCK // (hi - lo))
+            for start in range(0, len(indices), step):
+                block = indices[start : start + step]
+                found = self._fuzzy_block([plains[i] for i in block], forms[lo:hi])
+                for i, result in zip(block, found, strict=True):
+                    out[i] = result
+        return out
+
+    def _fuzzy_block(
+        self, plains: list[str], forms: list[str]
+    ) -> list[tuple[str, str, float] | None]:
+        """:meth:`_fuzzy_batch` for tokens against the forms of similar length, in order."""
         ratios = process.cdist(
             plains,
             forms,
@@ -353,13 +380,12 @@ class Scanner:
             dtype=np.float32,
             workers=-1,
         )
-        ratios[~window] = 0
         edits = process.cdist(
             plains, forms, scorer=OSA.distance, score_cutoff=1, dtype=np.int32, workers=-1
         )
         best_cols = ratios.argmax(axis=1)
         best_scores = ratios[np.arange(len(plains)), best_cols]
-        near_any = ((edits <= 1) & window).any(axis=1)
+        near_any = (edits <= 1).any(axis=1)
         out: list[tuple[str, str, float] | None] = []
         for row, plain in enumerate(plains):
             if best_scores[row] > 0:
@@ -372,7 +398,7 @@ class Scanner:
             # ("begger" vs "beggar" is 83): allow exactly one edit (OSA distance, so a swap of
             # two neighbouring letters counts as one) for words of 6 letters or more, and only
             # a swap ("theif") for 5-letter words.
-            near = np.flatnonzero((edits[row] <= 1) & window[row])
+            near = np.flatnonzero(edits[row] <= 1)
             result: tuple[str, str, float] | None = None
             if near.size:
                 form = forms[int(near[0])]
