@@ -106,33 +106,36 @@ def frame_sums(
     frame = long_frame(annotations)
     n_parts = min(cpu_count(), MAX_PARTS) if threads is None else threads
     cuts = item_cuts(frame["item"], n_parts) if len(frame) >= PARALLEL_ROWS else None
-    pieces: list[Coded] | None = None
+    wide = frozenset(parts) | frozenset(multi_parts)
+
+    def sums_of(coded: Coded, multi: bool) -> AgreementSums:
+        chosen = wide if multi else frozenset(parts)
+        return AgreementSums.from_coded(coded, level, chosen, leave_out=leave_out)
+
+    done: list[tuple[Coded, AgreementSums]] | None = None
     if cuts is not None:
         frames = [frame.iloc[a:b] for a, b in zip(cuts[:-1], cuts[1:], strict=True)]
 
-        def code_piece(piece: pd.DataFrame) -> Coded:
-            return code_frame(piece, level, sorted_items=True, threads=False)
+        def one(piece: pd.DataFrame) -> tuple[Coded, AgreementSums]:
+            # Coding and summing in the same thread: a part that finishes its coding early
+            # goes on to its sums instead of waiting for the others.
+            coded = code_frame(piece, level, sorted_items=True, threads=False)
+            return coded, sums_of(coded, coded.multi)
 
         try:
             with ThreadPoolExecutor(max_workers=len(frames)) as pool:
-                pieces = list(pool.map(code_piece, frames))
+                done = list(pool.map(one, frames))
         except ItemsNotSorted:
             pass  # ids decrease somewhere: one piece, below
         except UsageError:
             pass  # the one piece below raises it with the same words whichever part found it
-    if pieces is None:
-        pieces = [code_frame(frame, level)]
-    if any(coded.multi for coded in pieces):
-        parts = frozenset(parts) | frozenset(multi_parts)
-
-    def sums_of(coded: Coded) -> AgreementSums:
-        return AgreementSums.from_coded(coded, level, parts, leave_out=leave_out)
-
-    if len(pieces) == 1:
-        return sums_of(pieces[0]), pieces
-    with ThreadPoolExecutor(max_workers=len(pieces)) as pool:
-        found = list(pool.map(sums_of, pieces))
-    sums = found[0]
-    for other in found[1:]:
+    if done is None:
+        coded = code_frame(frame, level)
+        return sums_of(coded, coded.multi), [coded]
+    if any(coded.multi for coded, _ in done) and wide != frozenset(parts):
+        # Multi-label somewhere: every part needs the multi-label figures to merge (rare).
+        done = [(coded, sums if coded.multi else sums_of(coded, True)) for coded, sums in done]
+    sums = done[0][1]
+    for _, other in done[1:]:
         sums = sums.merge(other)
-    return sums, pieces
+    return sums, [coded for coded, _ in done]
