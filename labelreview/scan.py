@@ -385,7 +385,7 @@ class Scanner:
         )
         best_cols = ratios.argmax(axis=1)
         best_scores = ratios[np.arange(len(plains)), best_cols]
-        near_any = (edits <= 1).any(axis=1)
+        near_any = np.asarray((edits <= 1).any(axis=1), dtype=bool)
         out: list[tuple[str, str, float] | None] = []
         for row, plain in enumerate(plains):
             if best_scores[row] > 0:
