@@ -21,6 +21,7 @@ import pandas as pd
 from labelreview.agreement._coding import (
     Coded,
     ItemsNotSorted,
+    _arrow,
     check_level,
     code_frame,
     long_frame,
@@ -55,7 +56,7 @@ def item_cuts(items: pd.Series, n_parts: int) -> list[int] | None:
         keys: Any = np.asarray(items.cat.codes)
         if bool((keys < 0).any()):
             return None
-    elif getattr(items.array, "_pa_array", None) is not None:
+    elif _arrow(items) is not None:
         if bool(items.isna().any()):
             return None
         keys = items.array
